@@ -1,0 +1,331 @@
+//! Axisymmetric aperture geometry: the (z, r) half-plane with a partition of thickness `t`
+//! pierced by a circular hole of radius `a`, bounded by reservoir planes and a cylinder.
+//!
+//! Coordinates: z along the axis (flow direction +z), the partition occupies
+//! 0 ≤ z ≤ t, a ≤ r ≤ R; upstream region z_min ≤ z < 0, downstream t < z ≤ z_max, r < R.
+//! This module owns the surfaces and the exact ray–surface intersections (planes z = const and
+//! cylinders r = const) of a straight 3-D flight written in the molecule's local frame
+//! (position (r, 0, z), velocity (v_r, v_θ, v_z)). It decides nothing about what a hit does;
+//! that is the `mover`'s job. Invariant: a valid flight segment never enters the solid.
+
+/// Flight state of one molecule in its local frame: position (r, 0, z), velocity (v_r, v_θ, v_z).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Flight {
+    pub z: f64,
+    pub r: f64,
+    pub vz: f64,
+    pub vr: f64,
+    pub vt: f64,
+}
+
+/// What happens to a molecule at a surface.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SurfaceRole {
+    /// Open boundary to the upstream reservoir: molecules leaving are deleted.
+    UpstreamBoundary,
+    /// Open boundary to the downstream reservoir: molecules leaving are deleted.
+    DownstreamBoundary,
+    /// Solid wall of the partition or tube bore.
+    Wall,
+}
+
+/// Shape of a surface in (z, r).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum SurfaceShape {
+    /// Plane z = `z`, covering `r_lo ≤ r ≤ r_hi`.
+    PlaneZ { z: f64, r_lo: f64, r_hi: f64 },
+    /// Cylinder r = `r`, covering `z_lo ≤ z ≤ z_hi`.
+    CylinderR { r: f64, z_lo: f64, z_hi: f64 },
+}
+
+/// One surface of the domain.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Surface {
+    pub shape: SurfaceShape,
+    pub role: SurfaceRole,
+}
+
+/// The axisymmetric domain.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Axisymmetric {
+    /// Aperture radius a, m.
+    pub radius: f64,
+    /// Partition thickness t, m.
+    pub thickness: f64,
+    /// Upstream end of the domain (< 0), m.
+    pub z_min: f64,
+    /// Downstream end of the domain (> t), m.
+    pub z_max: f64,
+    /// Outer radius R (> a), m.
+    pub r_max: f64,
+    /// All surfaces; indices are stable and used as surface ids.
+    pub surfaces: Vec<Surface>,
+}
+
+/// Index of a surface in [`Axisymmetric::surfaces`].
+pub type SurfaceId = usize;
+
+impl Axisymmetric {
+    /// Build the domain; lengths in m.
+    pub fn new(radius: f64, thickness: f64, upstream: f64, downstream: f64, r_max: f64) -> Self {
+        assert!(
+            radius > 0.0
+                && thickness >= 0.0
+                && upstream > 0.0
+                && downstream > 0.0
+                && r_max > radius
+        );
+        let t = thickness;
+        let z_min = -upstream;
+        let z_max = t + downstream;
+        let mut s = vec![
+            Surface {
+                shape: SurfaceShape::PlaneZ {
+                    z: z_min,
+                    r_lo: 0.0,
+                    r_hi: r_max,
+                },
+                role: SurfaceRole::UpstreamBoundary,
+            },
+            Surface {
+                shape: SurfaceShape::CylinderR {
+                    r: r_max,
+                    z_lo: z_min,
+                    z_hi: 0.0,
+                },
+                role: SurfaceRole::UpstreamBoundary,
+            },
+            Surface {
+                shape: SurfaceShape::PlaneZ {
+                    z: z_max,
+                    r_lo: 0.0,
+                    r_hi: r_max,
+                },
+                role: SurfaceRole::DownstreamBoundary,
+            },
+            Surface {
+                shape: SurfaceShape::CylinderR {
+                    r: r_max,
+                    z_lo: t,
+                    z_hi: z_max,
+                },
+                role: SurfaceRole::DownstreamBoundary,
+            },
+            Surface {
+                shape: SurfaceShape::PlaneZ {
+                    z: 0.0,
+                    r_lo: radius,
+                    r_hi: r_max,
+                },
+                role: SurfaceRole::Wall,
+            },
+        ];
+        if t > 0.0 {
+            s.push(Surface {
+                shape: SurfaceShape::PlaneZ {
+                    z: t,
+                    r_lo: radius,
+                    r_hi: r_max,
+                },
+                role: SurfaceRole::Wall,
+            });
+            s.push(Surface {
+                shape: SurfaceShape::CylinderR {
+                    r: radius,
+                    z_lo: 0.0,
+                    z_hi: t,
+                },
+                role: SurfaceRole::Wall,
+            });
+        }
+        Axisymmetric {
+            radius,
+            thickness,
+            z_min,
+            z_max,
+            r_max,
+            surfaces: s,
+        }
+    }
+
+    /// Surface ids of the reservoir boundaries: (upstream plane, upstream cylinder,
+    /// downstream plane, downstream cylinder).
+    pub const UPSTREAM_PLANE: SurfaceId = 0;
+    pub const UPSTREAM_CYLINDER: SurfaceId = 1;
+    pub const DOWNSTREAM_PLANE: SurfaceId = 2;
+    pub const DOWNSTREAM_CYLINDER: SurfaceId = 3;
+
+    /// True when (z, r) lies inside the solid partition or outside the domain (tolerance
+    /// `eps` m). Points on a surface count as inside the gas.
+    pub fn is_outside_gas(&self, z: f64, r: f64, eps: f64) -> bool {
+        if !(z >= self.z_min - eps && z <= self.z_max + eps && r <= self.r_max + eps && r >= 0.0) {
+            return true;
+        }
+        let in_partition_z = if self.thickness > 0.0 {
+            z > eps && z < self.thickness - eps
+        } else {
+            false
+        };
+        in_partition_z && r > self.radius + eps
+    }
+
+    /// Gas volume of the upstream region (z < 0), m³.
+    pub fn upstream_volume(&self) -> f64 {
+        std::f64::consts::PI * self.r_max * self.r_max * (-self.z_min)
+    }
+
+    /// Gas volume of the bore (0 ≤ z ≤ t, r < a), m³.
+    pub fn bore_volume(&self) -> f64 {
+        std::f64::consts::PI * self.radius * self.radius * self.thickness
+    }
+
+    /// Gas volume of the downstream region (z > t), m³.
+    pub fn downstream_volume(&self) -> f64 {
+        std::f64::consts::PI * self.r_max * self.r_max * (self.z_max - self.thickness)
+    }
+
+    /// First intersection of the flight from (z, r) with velocity (v_z, v_r, v_θ) with any
+    /// surface, at a flight time in (0, `t_max`]. `last` is the surface the molecule sits on
+    /// (just reflected from or injected through), whose zero-time root is excluded.
+    /// Returns (time, surface id).
+    pub fn first_hit(
+        &self,
+        f: &Flight,
+        t_max: f64,
+        last: Option<SurfaceId>,
+    ) -> Option<(f64, SurfaceId)> {
+        let Flight { z, r, vz, vr, vt } = *f;
+        let mut best: Option<(f64, SurfaceId)> = None;
+        let mut limit = t_max;
+        for (id, s) in self.surfaces.iter().enumerate() {
+            let on_it = last == Some(id);
+            let hit = match s.shape {
+                SurfaceShape::PlaneZ { z: zp, r_lo, r_hi } => {
+                    if on_it || vz == 0.0 {
+                        None
+                    } else {
+                        let t = (zp - z) / vz;
+                        if t > 0.0 && t <= limit {
+                            let x = r + vr * t;
+                            let y = vt * t;
+                            let rh2 = x * x + y * y;
+                            (rh2 >= r_lo * r_lo && rh2 <= r_hi * r_hi).then_some(t)
+                        } else {
+                            None
+                        }
+                    }
+                }
+                SurfaceShape::CylinderR { r: rc, z_lo, z_hi } => {
+                    cylinder_time(r, vr, vt, rc, on_it, limit).and_then(|ts| {
+                        ts.into_iter().flatten().find(|&t| {
+                            let zh = z + vz * t;
+                            zh >= z_lo && zh <= z_hi
+                        })
+                    })
+                }
+            };
+            if let Some(t) = hit {
+                if t <= limit {
+                    limit = t;
+                    best = Some((t, id));
+                }
+            }
+        }
+        best
+    }
+}
+
+/// Positive flight times (ascending, at most two) at which the flight from radius `r` with
+/// transverse velocity (v_r, v_θ) reaches radius `rc`, not later than `t_max`.
+/// `on_it`: the molecule sits on this cylinder, so the zero root is dropped exactly.
+#[inline]
+fn cylinder_time(
+    r: f64,
+    vr: f64,
+    vt: f64,
+    rc: f64,
+    on_it: bool,
+    t_max: f64,
+) -> Option<[Option<f64>; 2]> {
+    let a = vr * vr + vt * vt;
+    if a == 0.0 {
+        return None;
+    }
+    let b = r * vr;
+    if on_it {
+        // r = rc: roots t = 0 and t = -2 r v_r / A.
+        let t = -2.0 * b / a;
+        return (t > 0.0 && t <= t_max).then_some([Some(t), None]);
+    }
+    let c = r * r - rc * rc;
+    let disc = b * b - a * c;
+    if disc < 0.0 {
+        return None;
+    }
+    let sq = disc.sqrt();
+    // Numerically stable pair of roots.
+    let q = -(b + b.signum() * sq);
+    let (t1, t2) = if q != 0.0 {
+        let x1 = q / a;
+        let x2 = c / q;
+        if x1 < x2 {
+            (x1, x2)
+        } else {
+            (x2, x1)
+        }
+    } else {
+        (0.0, 0.0)
+    };
+    let ok = |t: f64| (t > 0.0 && t <= t_max).then_some(t);
+    let out = [ok(t1), ok(t2)];
+    if out[0].is_none() && out[1].is_none() {
+        None
+    } else if out[0].is_none() {
+        Some([out[1], None])
+    } else {
+        Some(out)
+    }
+}
+
+/// Advance a straight 3-D flight by time `t` and rotate back into the (z, r) half-plane.
+/// Returns (z, r, v_r, v_θ); v_z is unchanged.
+#[inline]
+pub fn fly(z: f64, r: f64, vz: f64, vr: f64, vt: f64, t: f64) -> (f64, f64, f64, f64) {
+    let x = r + vr * t;
+    let y = vt * t;
+    let rn = (x * x + y * y).sqrt();
+    let zn = z + vz * t;
+    if rn > 0.0 {
+        let inv = 1.0 / rn;
+        (zn, rn, (x * vr + y * vt) * inv, (x * vt - y * vr) * inv)
+    } else {
+        (zn, 0.0, vr, vt)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn cylinder_roots_from_inside_and_outside() {
+        // From r = 0.5 moving radially outward at 1 m/s to rc = 1: t = 0.5.
+        let t = cylinder_time(0.5, 1.0, 0.0, 1.0, false, 10.0).unwrap();
+        assert!((t[0].unwrap() - 0.5).abs() < 1e-15);
+        // From r = 2 moving inward: enters at t = 1, leaves at t = 3.
+        let t = cylinder_time(2.0, -1.0, 0.0, 1.0, false, 10.0).unwrap();
+        assert!((t[0].unwrap() - 1.0).abs() < 1e-15 && (t[1].unwrap() - 3.0).abs() < 1e-15);
+        // On the cylinder moving inward: chord time 2.
+        let t = cylinder_time(1.0, -1.0, 0.0, 1.0, true, 10.0).unwrap();
+        assert!((t[0].unwrap() - 2.0).abs() < 1e-15);
+    }
+
+    #[test]
+    fn fly_keeps_distance() {
+        let (z, r, vr, vt) = fly(0.0, 1.0, 1.0, 0.0, 1.0, 1.0);
+        assert!((z - 1.0).abs() < 1e-15);
+        assert!((r - 2f64.sqrt()).abs() < 1e-15);
+        // speed in the transverse plane is conserved
+        assert!(((vr * vr + vt * vt) - 1.0).abs() < 1e-15);
+    }
+}

@@ -1,0 +1,34 @@
+//! kinflux: direct simulation Monte Carlo (DSMC) of rarefied gas flow through small apertures.
+//!
+//! The engine is a library; the `kinflux` binary is a thin command-line layer over it.
+//! Modules are named after the physical stage they own, so a reader finds "where molecules hit
+//! walls" (`mover`), "where molecules enter" (`reservoir`), "where the flow rate is measured"
+//! (`flux`) from the file names alone. Data flow of one run:
+//!
+//! ```text
+//! case.toml --case::load--> Case --numerics::plan--> Plan (domain, weights, time step)
+//!   loop (simulation::Simulation::step): inject -> move -> reweight -> tally flux -> monitor
+//!   --> summary::Summary (summary.json)
+//! ```
+
+pub mod analytic;
+pub mod case;
+pub mod constants;
+pub mod error;
+pub mod flux;
+pub mod gas;
+pub mod geometry;
+pub mod maxwell;
+pub mod monitor;
+pub mod mover;
+pub mod numerics;
+pub mod output;
+pub mod particles;
+pub mod reservoir;
+pub mod simulation;
+pub mod streams;
+pub mod summary;
+pub mod units;
+pub mod weights;
+
+pub use error::{Error, Result};

@@ -1,0 +1,279 @@
+//! `kinflux` command line: a thin layer over the engine library.
+//!
+//! Exit codes: 0 success, 2 bad input or unusable output location (message names the file,
+//! key, value and expectation), 1 any other failure.
+
+use clap::{Parser, Subcommand};
+use kinflux::{case, gas, numerics::Plan, output, simulation::Simulation, summary::Summary};
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+use std::time::Duration;
+
+#[derive(Parser)]
+#[command(
+    name = "kinflux",
+    version,
+    about = "DSMC flow through small apertures: orifices and short tubes from free-molecular to near-continuum"
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Simulate a case and write summary.json into the output directory.
+    Run {
+        /// Case file (TOML).
+        case: PathBuf,
+        /// Output directory (default: runs/<case name>).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Override a case value, e.g. --set upstream.pressure="10 Pa" (repeatable).
+        #[arg(long = "set", value_name = "KEY=VALUE")]
+        set: Vec<String>,
+        /// Worker threads (default: all cores). Results do not depend on it.
+        #[arg(long)]
+        threads: Option<usize>,
+        /// Overwrite an output directory that already holds results.
+        #[arg(long)]
+        force: bool,
+        /// Print only the final result.
+        #[arg(long)]
+        quiet: bool,
+    },
+    /// Validate a case and print the derived regime and numerics without running.
+    Check {
+        case: PathBuf,
+        #[arg(long = "set", value_name = "KEY=VALUE")]
+        set: Vec<String>,
+    },
+    /// Analytic estimates (mean free path, Kn, δ, free-molecular and isentropic flow).
+    Estimate {
+        case: PathBuf,
+        #[arg(long = "set", value_name = "KEY=VALUE")]
+        set: Vec<String>,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
+    /// List the built-in gas library with sources.
+    Gases,
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    match run(cli) {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("kinflux: error: {e}");
+            match e.downcast_ref::<kinflux::Error>() {
+                Some(k) if k.is_user_error() => ExitCode::from(2),
+                _ => ExitCode::from(1),
+            }
+        }
+    }
+}
+
+fn run(cli: Cli) -> anyhow::Result<()> {
+    match cli.command {
+        Command::Run {
+            case,
+            out,
+            set,
+            threads,
+            force,
+            quiet,
+        } => cmd_run(&case, out, &set, threads, force, quiet),
+        Command::Check { case, set } => {
+            let c = case::load(&case, &set)?;
+            let plan = Plan::new(&c)?;
+            println!("{}: valid case \"{}\"", case.display(), c.title);
+            print_estimate(&plan);
+            print_numerics(&plan);
+            Ok(())
+        }
+        Command::Estimate { case, set, json } => {
+            let c = case::load(&case, &set)?;
+            let plan = Plan::new(&c)?;
+            if json {
+                println!("{}", serde_json::to_string_pretty(&plan.estimate)?);
+            } else {
+                print_estimate(&plan);
+            }
+            Ok(())
+        }
+        Command::Gases => {
+            println!(
+                "{:<5} {:>10} {:>8} {:>8} {:>6} {:>6} {:>5} {:>11}",
+                "gas", "M g/mol", "d_VHS Å", "d_VSS Å", "ω", "α_VSS", "ζrot", "μ(273K) Pa·s"
+            );
+            let vss = gas::library_with(gas::MolecularModel::Vss);
+            for (s, v) in gas::library().iter().zip(&vss) {
+                println!(
+                    "{:<5} {:>10.3} {:>8.3} {:>8.3} {:>6.2} {:>6.2} {:>5} {:>11.4e}",
+                    s.name,
+                    s.molar_mass() * 1e3,
+                    s.d_ref * 1e10,
+                    v.d_ref * 1e10,
+                    s.omega,
+                    v.alpha,
+                    s.rot_dof,
+                    s.mu_ref
+                );
+            }
+            println!("reference temperature {} K for d and μ", gas::BIRD_T_REF);
+            println!("source: {}", gas::BIRD_1994_A);
+            Ok(())
+        }
+    }
+}
+
+fn cmd_run(
+    case_path: &Path,
+    out: Option<PathBuf>,
+    set: &[String],
+    threads: Option<usize>,
+    force: bool,
+    quiet: bool,
+) -> anyhow::Result<()> {
+    let c = case::load(case_path, set)?;
+    let plan = Plan::new(&c)?;
+    let out = out.unwrap_or_else(|| {
+        let stem = case_path
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "case".into());
+        PathBuf::from("runs").join(stem)
+    });
+    if threads == Some(0) {
+        return Err(kinflux::Error::Input("--threads 0: expected at least 1 thread".into()).into());
+    }
+    output::prepare_run_dir(&out, force)?;
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads.unwrap_or(0))
+        .build()?;
+    let nthreads = pool.current_num_threads();
+    if !quiet {
+        eprintln!(
+            "kinflux {}: {} ({})",
+            env!("CARGO_PKG_VERSION"),
+            c.title,
+            case_path.display()
+        );
+        eprintln!("caution: {}", kinflux::summary::CAUTION);
+        print_estimate(&plan);
+        print_numerics(&plan);
+        eprintln!(
+            "running on {nthreads} thread(s); results in {}",
+            out.display()
+        );
+    }
+    let (sim, outcome) = pool.install(|| {
+        let mut sim = Simulation::new(plan);
+        let outcome = sim.run(Duration::from_secs(5), |s, e, t| {
+            if quiet {
+                return;
+            }
+            let flow = match e {
+                Some(e) => format!("{:.5e} kg/s ± {:.2}%", e.mean, 100.0 * e.relative()),
+                None => "(start-up)".to_string(),
+            };
+            eprintln!(
+                "  t = {:>6.1} s  step {:>8}  molecules {:>9}  flow {}",
+                t.as_secs_f64(),
+                s.step,
+                s.population(),
+                flow
+            );
+        });
+        (sim, outcome)
+    });
+    let summary = Summary::new(&sim, &outcome, nthreads);
+    output::write_json(&out.join("summary.json"), &summary)?;
+    print_result(&summary);
+    println!("wrote {}", out.join("summary.json").display());
+    Ok(())
+}
+
+fn print_estimate(plan: &Plan) {
+    let e = &plan.estimate;
+    let c = &plan.case;
+    println!("gas                      {}", c.gas.label());
+    println!(
+        "upstream / downstream    {:.6e} Pa, {:.2} K / {:.6e} Pa, {:.2} K",
+        c.upstream.pressure,
+        c.upstream.temperature,
+        c.downstream.pressure,
+        c.downstream.temperature
+    );
+    println!(
+        "aperture                 diameter {:.6e} m, thickness {:.6e} m (L/R = {:.4})",
+        c.aperture.diameter,
+        c.aperture.thickness,
+        c.aperture.thickness / c.aperture.radius()
+    );
+    println!(
+        "mean free path upstream  {:.4e} m",
+        e.upstream_mean_free_path
+    );
+    println!(
+        "Knudsen number λ1/D      {:.4e}   regime: {}",
+        e.knudsen_number,
+        e.regime.label()
+    );
+    println!("rarefaction δ = p a/(μ v0) {:.4e}", e.rarefaction_parameter);
+    println!("Clausing factor          {:.5}", e.clausing_factor);
+    let fm_q = kinflux::units::TradeFlow::from_molecules(
+        e.free_molecular_net_mass_flow / c.gas.mean_mass(),
+        c.upstream.temperature,
+    );
+    println!(
+        "free-molecular flow      {:.5e} kg/s into vacuum; net {:.5e} kg/s = {:.5e} sccm",
+        e.free_molecular_mass_flow, e.free_molecular_net_mass_flow, fm_q.sccm
+    );
+    println!(
+        "isentropic nozzle (Cd=1) {:.5e} kg/s (W = {:.4})",
+        e.isentropic_mass_flow, e.isentropic_reduced_flow
+    );
+}
+
+fn print_numerics(plan: &Plan) {
+    let n = &plan.choices;
+    println!(
+        "numerics                 domain {}a upstream, {}a downstream, outer radius {}a; radial weight ratio {} over {} bands",
+        n.upstream_length_radii, n.downstream_length_radii, n.outer_radius_radii, n.radial_weight_ratio, n.radial_bands
+    );
+    println!(
+        "                         time step {:.4e} s, {} molecules at start, weight {:.4e}, start-up {} steps",
+        n.time_step_s, n.target_molecules, n.molecule_weight, n.startup_steps
+    );
+}
+
+fn print_result(s: &Summary) {
+    let f = &s.flow;
+    println!(
+        "result ({}; {} steps, {:.1} s, {:.3e} particle-steps/s)",
+        s.run.stop_reason_text, s.run.steps, s.run.wall_time_s, s.run.particle_steps_per_s
+    );
+    println!(
+        "  mass flow rate         {:.5e} ± {:.2e} kg/s (95 %)",
+        f.mass_flow_rate_kg_s, f.mass_flow_rate_ci95_kg_s
+    );
+    println!(
+        "  reduced flow rate W    {:.5} ± {:.5}",
+        f.reduced_flow_rate, f.reduced_flow_rate_ci95
+    );
+    println!(
+        "  throughput             {:.5e} Pa·m³/s = {:.5e} mbar·L/s = {:.5e} sccm ({})",
+        f.throughput_pa_m3_s, f.throughput_mbar_l_s, f.throughput_sccm, f.standard_conditions
+    );
+    println!("  conductance            {:.5e} L/s", f.conductance_l_s);
+    for sp in &f.species {
+        println!(
+            "  {:<6} {:.5e} kg/s, {:.5e} mol/s (W_i = {:.5})",
+            sp.name, sp.mass_flow_rate_kg_s, sp.molar_flow_rate_mol_s, sp.reduced_flow_rate
+        );
+    }
+    println!("caution: {}", s.caution);
+}

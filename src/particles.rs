@@ -1,0 +1,96 @@
+//! Storage of simulated molecules as a structure of arrays.
+//!
+//! Each molecule has an axial position z, a radius r ≥ 0 and three velocity components in its
+//! local frame (v_z, v_r, v_θ), plus a species index. Arrays always have equal length; a
+//! molecule marked [`DEAD`] is removed by [`Molecules::compact`], which keeps the order of the
+//! survivors (order matters for reproducibility).
+
+use crate::mover::Flight;
+
+/// Species marker of a molecule scheduled for removal.
+pub const DEAD: u8 = u8::MAX;
+
+/// Simulated molecules (structure of arrays).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Molecules {
+    pub z: Vec<f64>,
+    pub r: Vec<f64>,
+    pub vz: Vec<f64>,
+    pub vr: Vec<f64>,
+    pub vt: Vec<f64>,
+    pub species: Vec<u8>,
+}
+
+impl Molecules {
+    /// Number of molecules.
+    pub fn len(&self) -> usize {
+        self.z.len()
+    }
+
+    /// True when empty.
+    pub fn is_empty(&self) -> bool {
+        self.z.is_empty()
+    }
+
+    /// Reserve room for `n` more molecules.
+    pub fn reserve(&mut self, n: usize) {
+        self.z.reserve(n);
+        self.r.reserve(n);
+        self.vz.reserve(n);
+        self.vr.reserve(n);
+        self.vt.reserve(n);
+        self.species.reserve(n);
+    }
+
+    /// Append a molecule.
+    #[inline]
+    pub fn push(&mut self, f: &Flight, species: u8) {
+        self.z.push(f.z);
+        self.r.push(f.r);
+        self.vz.push(f.vz);
+        self.vr.push(f.vr);
+        self.vt.push(f.vt);
+        self.species.push(species);
+    }
+
+    /// Flight state of molecule `i`.
+    #[inline]
+    pub fn flight(&self, i: usize) -> Flight {
+        Flight {
+            z: self.z[i],
+            r: self.r[i],
+            vz: self.vz[i],
+            vr: self.vr[i],
+            vt: self.vt[i],
+        }
+    }
+
+    /// Remove molecules marked [`DEAD`], keeping the order of the rest. Returns how many went.
+    pub fn compact(&mut self) -> usize {
+        let n = self.len();
+        let mut w = 0;
+        for i in 0..n {
+            if self.species[i] != DEAD {
+                if w != i {
+                    self.z[w] = self.z[i];
+                    self.r[w] = self.r[i];
+                    self.vz[w] = self.vz[i];
+                    self.vr[w] = self.vr[i];
+                    self.vt[w] = self.vt[i];
+                    self.species[w] = self.species[i];
+                }
+                w += 1;
+            }
+        }
+        self.z.truncate(w);
+        self.r.truncate(w);
+        self.vz.truncate(w);
+        self.vr.truncate(w);
+        self.vt.truncate(w);
+        self.species.truncate(w);
+        n - w
+    }
+
+    /// Bytes held per molecule by the arrays (struct-of-arrays footprint).
+    pub const BYTES_PER_MOLECULE: usize = 5 * 8 + 1;
+}

@@ -1,0 +1,250 @@
+//! The result of a run as stored in `summary.json`: flow rates in SI and the trade's units
+//! with their 95 % intervals, the analytic references beside them, the regime, the numerics
+//! used and run statistics.
+//!
+//! Key names are a contract (other tools and the tests read them): `flow.mass_flow_rate_kg_s`,
+//! `flow.mass_flow_rate_ci95_kg_s`, `flow.reduced_flow_rate`, `flow.reduced_flow_rate_ci95`,
+//! `flow.species[]`, `flow.throughput_pa_m3_s`, `flow.throughput_sccm`, `flow.conductance_l_s`,
+//! `regime.rarefaction_parameter`, `regime.knudsen_number`, `run.steps`, `run.wall_time_s`,
+//! `run.particle_steps_per_s`. Add keys freely; never rename or remove one.
+
+use crate::analytic::Estimate;
+use crate::constants::AVOGADRO;
+use crate::monitor::{batch_means, StopReason};
+use crate::numerics::Choices;
+use crate::simulation::{Balance, RunOutcome, Simulation};
+use crate::units::TradeFlow;
+use serde::Serialize;
+
+/// Caution printed with every result and stored in summary.json.
+pub const CAUTION: &str = "Design estimate only. Pressurised, toxic, flammable or asphyxiant gases, vacuum vessels and flow-limiting orifices in safety systems are governed by local codes and licensed engineering practice; a simulated flow rate is not a certification.";
+
+/// Flow of one species.
+#[derive(Debug, Clone, Serialize)]
+pub struct SpeciesFlow {
+    pub name: String,
+    pub mole_fraction: f64,
+    pub mass_flow_rate_kg_s: f64,
+    pub mass_flow_rate_ci95_kg_s: f64,
+    pub molar_flow_rate_mol_s: f64,
+    pub molar_flow_rate_ci95_mol_s: f64,
+    pub molecule_flow_rate_per_s: f64,
+    /// This species' flow over its own free-molecular (effusion) flow into vacuum.
+    pub reduced_flow_rate: f64,
+}
+
+/// Flow through the aperture.
+#[derive(Debug, Clone, Serialize)]
+pub struct FlowSummary {
+    pub mass_flow_rate_kg_s: f64,
+    pub mass_flow_rate_ci95_kg_s: f64,
+    /// W = Ṁ / Ṁ_fm with Ṁ_fm the free-molecular flow into vacuum.
+    pub reduced_flow_rate: f64,
+    pub reduced_flow_rate_ci95: f64,
+    pub molar_flow_rate_mol_s: f64,
+    pub throughput_pa_m3_s: f64,
+    pub throughput_mbar_l_s: f64,
+    pub throughput_torr_l_s: f64,
+    pub throughput_sccm: f64,
+    pub throughput_slm: f64,
+    /// Temperature at which the p·V throughput is stated (upstream), K.
+    pub throughput_reference_temperature_k: f64,
+    /// Standard conditions of sccm/slm.
+    pub standard_conditions: &'static str,
+    /// Q / (p1 − p2), L/s.
+    pub conductance_l_s: f64,
+    pub species: Vec<SpeciesFlow>,
+}
+
+/// Regime figures (analytic layer).
+#[derive(Debug, Clone, Serialize)]
+pub struct RegimeSummary {
+    pub rarefaction_parameter: f64,
+    pub knudsen_number: f64,
+    pub upstream_mean_free_path_m: f64,
+    pub label: &'static str,
+}
+
+/// Analytic references shown beside the result.
+#[derive(Debug, Clone, Serialize)]
+pub struct References {
+    /// Ṁ_fm = π a² Σ x_i p1 sqrt(m_i/(2πkT1)) (Knudsen effusion), kg/s.
+    pub free_molecular_mass_flow_kg_s: f64,
+    /// Free-molecular net flow with the Clausing factor and back-flow, kg/s.
+    pub free_molecular_net_mass_flow_kg_s: f64,
+    pub clausing_factor: f64,
+    /// Ideal isentropic nozzle (discharge coefficient 1), kg/s.
+    pub isentropic_mass_flow_kg_s: f64,
+    pub isentropic_reduced_flow: f64,
+}
+
+/// Run statistics.
+#[derive(Debug, Clone, Serialize)]
+pub struct RunSummary {
+    pub steps: u64,
+    pub startup_steps: u64,
+    pub sampling_steps: u64,
+    pub wall_time_s: f64,
+    pub particle_steps: u64,
+    pub particle_steps_per_s: f64,
+    pub threads: usize,
+    pub stop_reason: StopReason,
+    pub stop_reason_text: &'static str,
+    pub molecules_at_end: u64,
+    pub aperture_crossing_events: u64,
+    pub batch_length_steps: usize,
+    pub balance: Balance,
+    pub seed: u64,
+}
+
+/// Everything written to summary.json.
+#[derive(Debug, Clone, Serialize)]
+pub struct Summary {
+    pub kinflux_version: &'static str,
+    pub title: String,
+    pub case_file: String,
+    pub gas: String,
+    pub mode: &'static str,
+    pub flow: FlowSummary,
+    pub regime: RegimeSummary,
+    pub reference: References,
+    pub numerics: Choices,
+    pub run: RunSummary,
+    pub caution: &'static str,
+}
+
+impl Summary {
+    /// Build the summary of a finished (or interrupted) simulation.
+    pub fn new(sim: &Simulation, outcome: &RunOutcome, threads: usize) -> Summary {
+        let plan = &sim.plan;
+        let case = &plan.case;
+        let est: &Estimate = &plan.estimate;
+        let dt = plan.dt;
+        let start = (plan.startup_steps as usize).min(sim.flux.steps());
+        let sampled = sim.flux.steps() - start;
+        let mass = sim.mass_flow_estimate();
+        let (mdot, mdot_ci, batch_len) = match mass {
+            Some(e) => (e.mean, e.half_width, e.batch_len),
+            None => {
+                // Too few steps for batches: plain mean, interval unknown.
+                let s = &sim.flux.mass_per_step[start..];
+                let mean = if s.is_empty() {
+                    0.0
+                } else {
+                    s.iter().sum::<f64>() / s.len() as f64 / dt
+                };
+                (mean, f64::INFINITY, 0)
+            }
+        };
+        let fm = est.free_molecular_mass_flow;
+        let mut molecules_total = 0.0;
+        let species: Vec<SpeciesFlow> = case
+            .gas
+            .components
+            .iter()
+            .enumerate()
+            .map(|(s, c)| {
+                let series = &sim.flux.molecules_per_step[s][start..];
+                let (n, n_ci) = match batch_means(series) {
+                    Some(e) => (e.mean / dt, e.half_width / dt),
+                    None => {
+                        let mean = if series.is_empty() {
+                            0.0
+                        } else {
+                            series.iter().sum::<f64>() / series.len() as f64 / dt
+                        };
+                        (mean, f64::INFINITY)
+                    }
+                };
+                molecules_total += n;
+                let fm_s = crate::analytic::effusion_molecule_flow(
+                    &case.gas,
+                    case.upstream.pressure,
+                    case.upstream.temperature,
+                    case.aperture.area(),
+                )[s];
+                SpeciesFlow {
+                    name: c.species.name.clone(),
+                    mole_fraction: c.mole_fraction,
+                    mass_flow_rate_kg_s: n * c.species.mass,
+                    mass_flow_rate_ci95_kg_s: n_ci * c.species.mass,
+                    molar_flow_rate_mol_s: n / AVOGADRO,
+                    molar_flow_rate_ci95_mol_s: n_ci / AVOGADRO,
+                    molecule_flow_rate_per_s: n,
+                    reduced_flow_rate: n / fm_s,
+                }
+            })
+            .collect();
+        let t_ref = case.upstream.temperature;
+        let trade = TradeFlow::from_molecules(molecules_total, t_ref);
+        let dp = case.upstream.pressure - case.downstream.pressure;
+        let conductance = if dp > 0.0 {
+            trade.throughput_pa_m3_s / dp * 1e3
+        } else {
+            f64::NAN
+        };
+        let wall = outcome.wall_time.as_secs_f64();
+        Summary {
+            kinflux_version: env!("CARGO_PKG_VERSION"),
+            title: case.title.clone(),
+            case_file: case.source.clone(),
+            gas: case.gas.label(),
+            mode: if case.solver.collisions {
+                "dsmc"
+            } else {
+                "free_molecular"
+            },
+            flow: FlowSummary {
+                mass_flow_rate_kg_s: mdot,
+                mass_flow_rate_ci95_kg_s: mdot_ci,
+                reduced_flow_rate: mdot / fm,
+                reduced_flow_rate_ci95: mdot_ci / fm,
+                molar_flow_rate_mol_s: molecules_total / AVOGADRO,
+                throughput_pa_m3_s: trade.throughput_pa_m3_s,
+                throughput_mbar_l_s: trade.throughput_mbar_l_s,
+                throughput_torr_l_s: trade.throughput_torr_l_s,
+                throughput_sccm: trade.sccm,
+                throughput_slm: trade.slm,
+                throughput_reference_temperature_k: t_ref,
+                standard_conditions: "sccm and slm at 0 °C (273.15 K) and 101325 Pa",
+                conductance_l_s: conductance,
+                species,
+            },
+            regime: RegimeSummary {
+                rarefaction_parameter: est.rarefaction_parameter,
+                knudsen_number: est.knudsen_number,
+                upstream_mean_free_path_m: est.upstream_mean_free_path,
+                label: est.regime.label(),
+            },
+            reference: References {
+                free_molecular_mass_flow_kg_s: fm,
+                free_molecular_net_mass_flow_kg_s: est.free_molecular_net_mass_flow,
+                clausing_factor: est.clausing_factor,
+                isentropic_mass_flow_kg_s: est.isentropic_mass_flow,
+                isentropic_reduced_flow: est.isentropic_reduced_flow,
+            },
+            numerics: plan.choices.clone(),
+            run: RunSummary {
+                steps: sim.step,
+                startup_steps: plan.startup_steps,
+                sampling_steps: sampled as u64,
+                wall_time_s: wall,
+                particle_steps: sim.particle_steps,
+                particle_steps_per_s: if wall > 0.0 {
+                    sim.particle_steps as f64 / wall
+                } else {
+                    0.0
+                },
+                threads,
+                stop_reason: outcome.stop,
+                stop_reason_text: outcome.stop.describe(),
+                molecules_at_end: sim.population(),
+                aperture_crossing_events: sim.flux.events_per_step[start..].iter().sum(),
+                batch_length_steps: batch_len,
+                balance: sim.balance,
+                seed: case.solver.seed,
+            },
+            caution: CAUTION,
+        }
+    }
+}

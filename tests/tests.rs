@@ -1,0 +1,10 @@
+//! Integration tests of kinflux, one binary with a module per topic. Each physics check names
+//! its published source beside it.
+
+mod util;
+
+mod analytic;
+mod case_errors;
+mod free_molecular;
+mod invariants;
+mod maxwell;
