@@ -124,6 +124,13 @@ fn run(cli: Cli) -> anyhow::Result<()> {
             }
             println!("reference temperature {} K for d and μ", gas::BIRD_T_REF);
             println!("source: {}", gas::BIRD_1994_A);
+            for s in gas::library() {
+                if let Some(note) = s.source.strip_prefix(gas::BIRD_1994_A) {
+                    if !note.is_empty() {
+                        println!("note on {}: {}", s.name, note.trim_start_matches("; "));
+                    }
+                }
+            }
             Ok(())
         }
     }

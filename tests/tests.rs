@@ -6,5 +6,6 @@ mod util;
 mod analytic;
 mod case_errors;
 mod free_molecular;
+mod gas;
 mod invariants;
 mod maxwell;
