@@ -107,7 +107,8 @@ const TABLE: &[(&str, f64, f64, f64, f64, f64, u32, f64, &str)] = &[
 /// The diameters recalled for CO (4.19 Å VHS, 4.12 Å VSS) give a viscosity 2 % below the
 /// table's μ_ref, which agrees with handbook data (about 16.6 µPa·s at 0 °C); the round-trip
 /// test rejects that, so for CO the diameters are fitted to μ_ref by eq. 4.62.
-const CO_NOTE: &str = "; CO diameters fitted to mu_ref by eq. 4.62 (recalled 4.19/4.12 A were 2 % inconsistent)";
+const CO_NOTE: &str =
+    "; CO diameters fitted to mu_ref by eq. 4.62 (recalled 4.19/4.12 A were 2 % inconsistent)";
 
 /// Reference temperature of Bird's Appendix A, K.
 pub const BIRD_T_REF: f64 = 273.0;

@@ -13,6 +13,7 @@
 
 pub mod analytic;
 pub mod case;
+pub mod collide;
 pub mod constants;
 pub mod error;
 pub mod flux;

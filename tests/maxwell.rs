@@ -1,6 +1,8 @@
 //! Equilibrium sampling: Maxwell–Boltzmann speeds and the reservoir inflow, checked against
 //! kinetic theory (Bird 1994 ch. 4) and an independent equilibrium-gas crossing count.
 
+#![allow(clippy::needless_range_loop)]
+
 use kinflux::constants::BOLTZMANN;
 use kinflux::maxwell;
 use kinflux::reservoir::ElementShape;
@@ -36,7 +38,10 @@ fn speed_moments_match_kinetic_theory() {
     let rms = (c.iter().map(|x| x * x).sum::<f64>() / c.len() as f64).sqrt();
     let mean_ref = (8.0 * BOLTZMANN * T / (std::f64::consts::PI * m)).sqrt();
     let rms_ref = (3.0 * BOLTZMANN * T / m).sqrt();
-    assert!((mean / mean_ref - 1.0).abs() < 2e-3, "mean {mean} vs {mean_ref}");
+    assert!(
+        (mean / mean_ref - 1.0).abs() < 2e-3,
+        "mean {mean} vs {mean_ref}"
+    );
     assert!((rms / rms_ref - 1.0).abs() < 2e-3, "rms {rms} vs {rms_ref}");
     assert!((maxwell::mean_speed(T, m) / mean_ref - 1.0).abs() < 1e-14);
 }
@@ -66,7 +71,9 @@ fn most_probable_speed_is_the_histogram_peak() {
             h[lo..hi].iter().sum::<f64>() / (hi - lo) as f64
         })
         .collect();
-    let k = (1..bins - 1).max_by(|&a, &b| s[a].partial_cmp(&s[b]).unwrap()).unwrap();
+    let k = (1..bins - 1)
+        .max_by(|&a, &b| s[a].partial_cmp(&s[b]).unwrap())
+        .unwrap();
     let denom = s[k - 1] - 2.0 * s[k] + s[k + 1];
     let offset = 0.5 * (s[k - 1] - s[k + 1]) / denom;
     let peak = (k as f64 + 0.5 + offset) * width;
@@ -97,7 +104,11 @@ fn sampled_speeds_pass_chi_square_against_maxwell_boltzmann() {
     let mut chi2 = 0.0;
     for b in 0..=bins {
         let lo = b as f64 * top / bins as f64;
-        let p = if b == bins { 1.0 - cdf(top) } else { cdf(lo + top / bins as f64) - cdf(lo) };
+        let p = if b == bins {
+            1.0 - cdf(top)
+        } else {
+            cdf(lo + top / bins as f64) - cdf(lo)
+        };
         let e = p * n as f64;
         chi2 += (obs[b] - e).powi(2) / e;
     }
@@ -112,10 +123,17 @@ fn sampled_speeds_pass_chi_square_against_maxwell_boltzmann() {
     let mut chi2_hot = 0.0;
     for b in 0..=bins {
         let lo = b as f64 * top / bins as f64;
-        let p = if b == bins { 1.0 - cdf_hot(top) } else { cdf_hot(lo + top / bins as f64) - cdf_hot(lo) };
+        let p = if b == bins {
+            1.0 - cdf_hot(top)
+        } else {
+            cdf_hot(lo + top / bins as f64) - cdf_hot(lo)
+        };
         chi2_hot += (obs[b] - p * n as f64).powi(2) / (p * n as f64);
     }
-    assert!(chi2_hot > critical, "a 6 % temperature error went unnoticed: {chi2_hot}");
+    assert!(
+        chi2_hot > critical,
+        "a 6 % temperature error went unnoticed: {chi2_hot}"
+    );
 }
 
 /// Reservoir inflow: the simulated flux through a boundary is n c̄/4 and the mean translational
@@ -149,7 +167,10 @@ fn reservoir_inflow_matches_equilibrium_crossing() {
     }
     let counted_flux = crossed as f64 / (area * dt);
     let theory_flux = maxwell::one_sided_flux(density, T, m);
-    assert!((counted_flux / theory_flux - 1.0).abs() < 0.01, "{counted_flux} vs {theory_flux}");
+    assert!(
+        (counted_flux / theory_flux - 1.0).abs() < 0.01,
+        "{counted_flux} vs {theory_flux}"
+    );
     assert!((energy / crossed as f64 / (2.0 * kt) - 1.0).abs() < 0.01);
 
     // kinflux's inflow element sampling: same energy per molecule and same mean normal speed.
@@ -169,11 +190,19 @@ fn reservoir_inflow_matches_equilibrium_crossing() {
         e_sum += 0.5 * m * (f.vz * f.vz + f.vr * f.vr + f.vt * f.vt);
         vn += f.vz;
     }
-    assert!((e_sum / k as f64 / (2.0 * kt) - 1.0).abs() < 0.005, "energy per entering molecule");
+    assert!(
+        (e_sum / k as f64 / (2.0 * kt) - 1.0).abs() < 0.005,
+        "energy per entering molecule"
+    );
     let vn_ref = vn_sum / crossed as f64;
-    assert!((vn / k as f64 / vn_ref - 1.0).abs() < 0.01, "mean normal speed of entering molecules");
+    assert!(
+        (vn / k as f64 / vn_ref - 1.0).abs() < 0.01,
+        "mean normal speed of entering molecules"
+    );
     // and its expected count per step is n c̄/4 · area · dt in simulated molecules
-    let ElementShape::Annulus { r_lo, r_hi, .. } = el.shape else { unreachable!() };
+    let ElementShape::Annulus { r_lo, r_hi, .. } = el.shape else {
+        unreachable!()
+    };
     let el_area = std::f64::consts::PI * (r_hi * r_hi - r_lo * r_lo);
     let n1 = 0.5 / (BOLTZMANN * 295.0);
     let real_per_s = el.expected_per_step * plan.fnum * plan.weights.factor[0] / plan.dt / el_area;

@@ -5,6 +5,7 @@ mod util;
 
 mod analytic;
 mod case_errors;
+mod collisions;
 mod free_molecular;
 mod gas;
 mod invariants;
