@@ -74,6 +74,10 @@ pub struct DomainSpec {
     pub outer_radius: Option<f64>,
     /// Ratio of the molecule weight at the outer radius to the weight on the axis (≥ 1).
     pub radial_weight_ratio: Option<f64>,
+    /// Cell size, in aperture radii.
+    pub cell_size: Option<f64>,
+    /// Subcells per cell along each direction (1 to 8).
+    pub subcells: Option<u64>,
 }
 
 /// Solver settings.
@@ -93,6 +97,10 @@ pub struct SolverSpec {
     pub time_step: Option<f64>,
     /// Target number of simulated molecules in the initial fill (None = automatic).
     pub molecules: Option<u64>,
+    /// Target simulated molecules per upstream cell (collisional runs; None = automatic).
+    pub molecules_per_cell: Option<u64>,
+    /// Rotational relaxation: constant collision number, or Parker's temperature-dependent form.
+    pub rotational_relaxation: crate::collide::RotationalRelaxation,
 }
 
 /// A resolved case: every value in SI, checked.
@@ -522,6 +530,30 @@ fn resolve(root: &Table, file: &str) -> Result<Case> {
                     }
                     other => other,
                 },
+                cell_size: match d.number(
+                    "cell_size",
+                    "a cell size in aperture radii between 0.001 and 2",
+                )? {
+                    Some(x) if !(0.001..=2.0).contains(&x) => {
+                        return Err(d.reject(
+                            "cell_size",
+                            "a cell size in aperture radii between 0.001 and 2",
+                        ))
+                    }
+                    other => other,
+                },
+                subcells: match d.unsigned(
+                    "subcells",
+                    "a whole number of subcells per direction from 1 to 8",
+                )? {
+                    Some(n) if !(1..=8).contains(&n) => {
+                        return Err(d.reject(
+                            "subcells",
+                            "a whole number of subcells per direction from 1 to 8",
+                        ))
+                    }
+                    other => other,
+                },
             }
         }
     };
@@ -573,6 +605,36 @@ fn resolve(root: &Table, file: &str) -> Result<Case> {
                 "a whole number of simulated molecules from 1000 to 2e9",
             ));
         }
+        let per_cell = s.unsigned(
+            "molecules_per_cell",
+            "a whole number of molecules per cell from 2 to 1000",
+        )?;
+        if matches!(per_cell, Some(n) if !(2..=1000).contains(&n)) {
+            return Err(s.reject(
+                "molecules_per_cell",
+                "a whole number of molecules per cell from 2 to 1000",
+            ));
+        }
+        if per_cell.is_some() && molecules.is_some() {
+            return Err(s.reject(
+                "molecules_per_cell",
+                "either solver.molecules or solver.molecules_per_cell, not both",
+            ));
+        }
+        let zrot_expected = "a rotational collision number of at least 1 (e.g. 5), or \"parker\"";
+        let rotational_relaxation = match t.get("rotational_collision_number") {
+            None => crate::collide::RotationalRelaxation::Constant { z_rot: 5.0 },
+            Some(Value::String(x)) if x == "parker" => {
+                crate::collide::RotationalRelaxation::Parker {
+                    z_inf: 18.1,
+                    t_star: 91.5,
+                }
+            }
+            Some(_) => match s.number("rotational_collision_number", zrot_expected)? {
+                Some(z) if z >= 1.0 => crate::collide::RotationalRelaxation::Constant { z_rot: z },
+                _ => return Err(s.reject("rotational_collision_number", zrot_expected)),
+            },
+        };
         let max_steps = s.unsigned("max_steps", "a whole number of steps above 0")?;
         if max_steps == Some(0) {
             return Err(s.reject("max_steps", "a whole number of steps above 0"));
@@ -587,16 +649,10 @@ fn resolve(root: &Table, file: &str) -> Result<Case> {
                 .unwrap_or(1),
             time_step: dt,
             molecules,
+            molecules_per_cell: per_cell,
+            rotational_relaxation,
         }
     };
-    if solver.collisions {
-        return Err(Error::input(
-            file,
-            "solver.collisions",
-            "true",
-            "false in this version: the collision stage is not built yet, so only the free-molecular (collisionless) mode can run",
-        ));
-    }
 
     Ok(Case {
         source: file.to_string(),

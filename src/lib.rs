@@ -19,6 +19,7 @@ pub mod error;
 pub mod flux;
 pub mod gas;
 pub mod geometry;
+pub mod grid;
 pub mod maxwell;
 pub mod monitor;
 pub mod mover;

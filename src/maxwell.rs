@@ -50,3 +50,17 @@ pub fn velocity<R: Rng + ?Sized>(sigma: f64, rng: &mut R) -> [f64; 3] {
 pub fn one_sided_flux(n: f64, t: f64, mass: f64) -> f64 {
     0.25 * n * mean_speed(t, mass)
 }
+
+/// Rotational energy of a molecule with `dof` rotational degrees of freedom in equilibrium at
+/// temperature t, J: Gamma-distributed with shape dof/2 and scale kT (Bird 1994 eq. 5.14);
+/// for dof = 2 the exponential −kT ln U.
+#[inline]
+pub fn rotational_energy<R: Rng + ?Sized>(dof: u32, t: f64, rng: &mut R) -> f64 {
+    match dof {
+        0 => 0.0,
+        2 => -BOLTZMANN * t * (1.0 - rng.random::<f64>()).ln(),
+        d => rand_distr::Gamma::new(0.5 * d as f64, BOLTZMANN * t)
+            .map(|g| rand_distr::Distribution::sample(&g, rng))
+            .unwrap_or(0.0),
+    }
+}

@@ -38,7 +38,9 @@ pub const MAX_HITS_PER_STEP: usize = 10_000;
 
 /// Fly `m` for time `dt`. `last` is the surface the molecule starts on (an injection boundary),
 /// `z_count` the measurement plane; `on_cross(sign, r)` is called for each crossing of that
-/// plane (sign +1 in the +z direction, −1 against), with the crossing radius.
+/// plane (sign +1 in the +z direction, −1 against), with the crossing radius. `diffused` is set
+/// when the molecule was re-emitted diffusely by a wall (its internal energy must then be
+/// resampled at the wall temperature by the caller; specular hits keep it).
 #[allow(clippy::too_many_arguments)]
 #[inline]
 pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64)>(
@@ -50,6 +52,7 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64)>(
     z_count: f64,
     rng: &mut R,
     on_cross: &mut F,
+    diffused: &mut bool,
 ) -> Fate {
     let mut remaining = dt;
     for _ in 0..MAX_HITS_PER_STEP {
@@ -90,7 +93,9 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64)>(
                 remaining -= t;
                 match s.role {
                     SurfaceRole::Wall => {
-                        reflect(&s.shape, wall, m, rng);
+                        if reflect(&s.shape, wall, m, rng) {
+                            *diffused = true;
+                        }
                         last = Some(id);
                     }
                     role => return Fate::Left(role),
@@ -102,13 +107,14 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64)>(
 }
 
 /// Maxwell-model reflection at a wall: diffuse with probability `accommodation`, else specular.
+/// Returns true for a diffuse re-emission.
 #[inline]
 fn reflect<R: Rng + ?Sized>(
     shape: &SurfaceShape,
     wall: &WallReflection,
     m: &mut Flight,
     rng: &mut R,
-) {
+) -> bool {
     let diffuse = wall.accommodation >= 1.0 || rng.random::<f64>() < wall.accommodation;
     match *shape {
         SurfaceShape::PlaneZ { .. } => {
@@ -132,6 +138,7 @@ fn reflect<R: Rng + ?Sized>(
             }
         }
     }
+    diffuse
 }
 
 /// Normal speed of a molecule crossing a surface from an equilibrium gas (flux-weighted

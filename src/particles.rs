@@ -1,7 +1,7 @@
 //! Storage of simulated molecules as a structure of arrays.
 //!
-//! Each molecule has an axial position z, a radius r ≥ 0 and three velocity components in its
-//! local frame (v_z, v_r, v_θ), plus a species index. Arrays always have equal length; a
+//! Each molecule has an axial position z, a radius r ≥ 0, three velocity components in its
+//! local frame (v_z, v_r, v_θ), a rotational energy (J) and a species index. Arrays always have equal length; a
 //! molecule marked [`DEAD`] is removed by [`Molecules::compact`], which keeps the order of the
 //! survivors (order matters for reproducibility).
 
@@ -18,6 +18,8 @@ pub struct Molecules {
     pub vz: Vec<f64>,
     pub vr: Vec<f64>,
     pub vt: Vec<f64>,
+    /// Rotational energy, J.
+    pub erot: Vec<f64>,
     pub species: Vec<u8>,
 }
 
@@ -39,17 +41,19 @@ impl Molecules {
         self.vz.reserve(n);
         self.vr.reserve(n);
         self.vt.reserve(n);
+        self.erot.reserve(n);
         self.species.reserve(n);
     }
 
     /// Append a molecule.
     #[inline]
-    pub fn push(&mut self, f: &Flight, species: u8) {
+    pub fn push(&mut self, f: &Flight, erot: f64, species: u8) {
         self.z.push(f.z);
         self.r.push(f.r);
         self.vz.push(f.vz);
         self.vr.push(f.vr);
         self.vt.push(f.vt);
+        self.erot.push(erot);
         self.species.push(species);
     }
 
@@ -77,6 +81,7 @@ impl Molecules {
                     self.vz[w] = self.vz[i];
                     self.vr[w] = self.vr[i];
                     self.vt[w] = self.vt[i];
+                    self.erot[w] = self.erot[i];
                     self.species[w] = self.species[i];
                 }
                 w += 1;
@@ -87,10 +92,11 @@ impl Molecules {
         self.vz.truncate(w);
         self.vr.truncate(w);
         self.vt.truncate(w);
+        self.erot.truncate(w);
         self.species.truncate(w);
         n - w
     }
 
     /// Bytes held per molecule by the arrays (struct-of-arrays footprint).
-    pub const BYTES_PER_MOLECULE: usize = 5 * 8 + 1;
+    pub const BYTES_PER_MOLECULE: usize = 6 * 8 + 1;
 }

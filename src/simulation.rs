@@ -1,13 +1,15 @@
 //! The step loop: one simulation of one case, stage by stage.
 //!
-//! A step is a readable list of stages: release delayed clones → move (with wall hits, aperture
-//! counting and radial reweighting) → compact → inject from the reservoirs → record the flux.
-//! The move runs in parallel over fixed chunks of [`CHUNK`] molecules, each with its own random
-//! stream keyed by (seed, step, chunk); chunk results are merged in chunk order, so a run is
+//! A step is a readable list of stages: release delayed clones → move (wall hits, aperture
+//! counting, radial reweighting) → compact → inject from the reservoirs → sort by cell →
+//! collide → record the flux. The move runs in parallel over fixed chunks of [`CHUNK`]
+//! molecules and the collisions over fixed blocks of cells, each work unit with its own random
+//! stream keyed by (seed, step, stage, unit); results are merged in unit order, so a run is
 //! bit-identical for any number of threads. Invariants: after every step no molecule lies
 //! inside a wall or outside the domain, and the particle balance
 //! `initial + injected + released − left − deleted = population` holds exactly.
 
+use crate::collide::{collide_cell, CellMolecules, CollisionStats, Scratch};
 use crate::flux::{Crossings, FluxHistory};
 use crate::geometry::SurfaceRole;
 use crate::monitor::{batch_means, BatchEstimate, StopReason};
@@ -20,10 +22,14 @@ use rand::Rng;
 use rayon::prelude::*;
 use std::time::{Duration, Instant};
 
+/// Cells per collision work block (fixed, so results do not depend on the thread count).
+pub const CELL_BLOCK: usize = 64;
+
 /// A clone waiting for release (see `weights`).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct PendingClone {
     pub flight: Flight,
+    pub erot: f64,
     pub species: u8,
     /// Step at whose start the clone enters the domain.
     pub release_step: u64,
@@ -50,13 +56,34 @@ impl Balance {
     }
 }
 
-/// What one chunk of the move stage reports.
-struct ChunkReport {
+/// What one work unit of the move or inflow stage reports.
+struct MoveReport {
     crossings: Crossings,
     left_up: u64,
     left_down: u64,
     deleted: u64,
     clones: Vec<PendingClone>,
+}
+
+impl MoveReport {
+    fn new(species: usize) -> Self {
+        MoveReport {
+            crossings: Crossings::new(species),
+            left_up: 0,
+            left_down: 0,
+            deleted: 0,
+            clones: Vec::new(),
+        }
+    }
+}
+
+/// Per-step buffers of the sort (never part of the saved state).
+#[derive(Default)]
+struct SortScratch {
+    keys: Vec<u32>,
+    counts: Vec<u32>,
+    source: Vec<u32>,
+    spare: Molecules,
 }
 
 /// A simulation in progress.
@@ -70,6 +97,15 @@ pub struct Simulation {
     pub balance: Balance,
     /// Sum over steps of the molecules moved (particle-steps).
     pub particle_steps: u64,
+    /// (σ c_r)_max per cell and species pair (cell · S² + p · S + q).
+    pub sigma_cr_max: Vec<f64>,
+    /// Collision counters since the end of start-up.
+    pub collision_stats: CollisionStats,
+    /// Molecule-steps counted in cells during sampling (for molecules per cell).
+    pub sampled_cell_molecules: u64,
+    /// Start offsets of each (cell, subcell) in the sorted molecule arrays (length keys + 1).
+    pub cell_offsets: Vec<u32>,
+    sort: SortScratch,
 }
 
 impl Simulation {
@@ -82,6 +118,15 @@ impl Simulation {
             initial: molecules.len() as u64,
             ..Balance::default()
         };
+        let sigma_cr_max = if plan.collisions.is_some() {
+            let mut v = Vec::with_capacity(plan.grid.cells() * species * species);
+            for _ in 0..plan.grid.cells() {
+                v.extend_from_slice(&plan.initial_sigma_cr_max);
+            }
+            v
+        } else {
+            Vec::new()
+        };
         Simulation {
             plan,
             molecules,
@@ -90,6 +135,11 @@ impl Simulation {
             flux: FluxHistory::new(species),
             balance,
             particle_steps: 0,
+            sigma_cr_max,
+            collision_stats: CollisionStats::default(),
+            sampled_cell_molecules: 0,
+            cell_offsets: Vec::new(),
+            sort: SortScratch::default(),
         }
     }
 
@@ -99,9 +149,18 @@ impl Simulation {
         let mut crossings = self.move_molecules();
         self.molecules.compact();
         self.inject(&mut crossings);
+        if self.plan.collisions.is_some() {
+            self.sort_by_cell();
+            self.collide();
+        }
         self.flux
             .record(&crossings, self.plan.fnum, &self.plan.masses);
         self.step += 1;
+    }
+
+    /// True once the start-up steps are over.
+    pub fn sampling(&self) -> bool {
+        self.step >= self.plan.startup_steps
     }
 
     /// Stage: clones whose delay has passed join the domain.
@@ -111,7 +170,7 @@ impl Simulation {
         let mol = &mut self.molecules;
         self.pending.retain(|c| {
             if c.release_step <= step {
-                mol.push(&c.flight, c.species);
+                mol.push(&c.flight, c.erot, c.species);
                 released += 1;
                 false
             } else {
@@ -129,23 +188,18 @@ impl Simulation {
         let nspecies = plan.masses.len();
         let m = &mut self.molecules;
         self.particle_steps += m.len() as u64;
-        let reports: Vec<ChunkReport> =
+        let reports: Vec<MoveReport> =
             m.z.par_chunks_mut(CHUNK)
                 .zip(m.r.par_chunks_mut(CHUNK))
                 .zip(m.vz.par_chunks_mut(CHUNK))
                 .zip(m.vr.par_chunks_mut(CHUNK))
                 .zip(m.vt.par_chunks_mut(CHUNK))
+                .zip(m.erot.par_chunks_mut(CHUNK))
                 .zip(m.species.par_chunks_mut(CHUNK))
                 .enumerate()
-                .map(|(ci, (((((z, r), vz), vr), vt), sp))| {
+                .map(|(ci, ((((((z, r), vz), vr), vt), erot), sp))| {
                     let mut rng = stream(seed, step, Stage::Move, ci as u64);
-                    let mut rep = ChunkReport {
-                        crossings: Crossings::new(nspecies),
-                        left_up: 0,
-                        left_down: 0,
-                        deleted: 0,
-                        clones: Vec::new(),
-                    };
+                    let mut rep = MoveReport::new(nspecies);
                     for i in 0..z.len() {
                         let s = sp[i] as usize;
                         let mut f = Flight {
@@ -155,7 +209,17 @@ impl Simulation {
                             vr: vr[i],
                             vt: vt[i],
                         };
-                        match fly_one(plan, step, &mut f, s, plan.dt, None, &mut rng, &mut rep) {
+                        match fly_one(
+                            plan,
+                            step,
+                            &mut f,
+                            &mut erot[i],
+                            s,
+                            plan.dt,
+                            None,
+                            &mut rng,
+                            &mut rep,
+                        ) {
                             Fate::Stays => {
                                 z[i] = f.z;
                                 r[i] = f.r;
@@ -185,26 +249,29 @@ impl Simulation {
         let plan = &self.plan;
         let step = self.step;
         let seed = plan.case.solver.seed;
-        let mut rep = ChunkReport {
-            crossings: Crossings::new(plan.masses.len()),
-            left_up: 0,
-            left_down: 0,
-            deleted: 0,
-            clones: Vec::new(),
-        };
+        let mut rep = MoveReport::new(plan.masses.len());
         let mut injected = 0;
         for (ei, el) in plan.inflow.iter().enumerate() {
             let mut rng = stream(seed, step, Stage::Inject, ei as u64);
             let n = el.count(&mut rng);
             injected += n;
             let s = el.species as usize;
+            let t_res = if el.upstream {
+                plan.case.upstream.temperature
+            } else {
+                plan.case.downstream.temperature
+            };
             for _ in 0..n {
                 let mut f = el.sample(&mut rng);
+                let mut erot = crate::maxwell::rotational_energy(plan.rot_dof[s], t_res, &mut rng);
                 let t = plan.dt * rng.random::<f64>();
+                // A molecule that dies on its entry flight (left or deleted by weighting) is
+                // counted by `fly_one`, so the balance still closes.
                 if fly_one(
                     plan,
                     step,
                     &mut f,
+                    &mut erot,
                     s,
                     t,
                     Some(el.surface),
@@ -212,13 +279,10 @@ impl Simulation {
                     &mut rep,
                 ) == Fate::Stays
                 {
-                    // `fly_one` may already have counted this molecule as deleted by weighting.
-                    self.molecules.push(&f, el.species);
+                    self.molecules.push(&f, erot, el.species);
                 }
             }
         }
-        // Molecules that died during their entry flight were never pushed: count them as
-        // injected and then left/deleted, so the balance still closes.
         self.balance.injected += injected;
         self.balance.left_upstream += rep.left_up;
         self.balance.left_downstream += rep.left_down;
@@ -227,7 +291,196 @@ impl Simulation {
         crossings.merge(&rep.crossings);
     }
 
-    /// Simulated molecules in the domain plus clones waiting for release.
+    /// Stage: counting sort of the molecules by (cell, subcell); the arrays are reordered so
+    /// every cell's molecules are contiguous and ordered by subcell.
+    fn sort_by_cell(&mut self) {
+        let grid = &self.plan.grid;
+        let nkeys = grid.cells() * grid.subcells();
+        let m = &mut self.molecules;
+        let n = m.len();
+        let s = &mut self.sort;
+        s.keys.resize(n, 0);
+        s.keys
+            .par_chunks_mut(CHUNK)
+            .zip(m.z.par_chunks(CHUNK))
+            .zip(m.r.par_chunks(CHUNK))
+            .for_each(|((k, z), r)| {
+                for i in 0..k.len() {
+                    k[i] = grid.key(z[i], r[i]) as u32;
+                }
+            });
+        s.counts.clear();
+        s.counts.resize(nkeys + 1, 0);
+        for &k in &s.keys {
+            s.counts[k as usize + 1] += 1;
+        }
+        for k in 0..nkeys {
+            s.counts[k + 1] += s.counts[k];
+        }
+        self.cell_offsets.clone_from(&s.counts);
+        // source[position] = molecule index (stable: order within a key is kept)
+        s.source.resize(n, 0);
+        {
+            let next = &mut s.counts;
+            for (i, &k) in s.keys.iter().enumerate() {
+                let pos = next[k as usize];
+                s.source[pos as usize] = i as u32;
+                next[k as usize] += 1;
+            }
+        }
+        let src = &s.source;
+        let sp = &mut s.spare;
+        gather(&m.z, &mut sp.z, src);
+        gather(&m.r, &mut sp.r, src);
+        gather(&m.vz, &mut sp.vz, src);
+        gather(&m.vr, &mut sp.vr, src);
+        gather(&m.vt, &mut sp.vt, src);
+        gather(&m.erot, &mut sp.erot, src);
+        gather(&m.species, &mut sp.species, src);
+        std::mem::swap(m, sp);
+    }
+
+    /// Stage: NTC collisions in every cell, in parallel over fixed blocks of cells.
+    fn collide(&mut self) {
+        let plan = &self.plan;
+        let Some(model) = &plan.collisions else {
+            return;
+        };
+        let grid = &plan.grid;
+        let ns = plan.masses.len();
+        let ss = grid.subcells();
+        let rows = grid.r.len();
+        let cells = grid.cells();
+        let offsets = &self.cell_offsets;
+        let seed = plan.case.solver.seed;
+        let step = self.step;
+        // Split the sorted arrays into disjoint per-block slices.
+        struct Block<'a> {
+            first_cell: usize,
+            z: &'a [f64],
+            r: &'a [f64],
+            vz: &'a mut [f64],
+            vr: &'a mut [f64],
+            vt: &'a mut [f64],
+            erot: &'a mut [f64],
+            species: &'a [u8],
+            scm: &'a mut [f64],
+        }
+        let m = &mut self.molecules;
+        let mut blocks = Vec::with_capacity(cells.div_ceil(CELL_BLOCK));
+        let (mut z, mut r, mut vz, mut vr, mut vt, mut erot, mut sp, mut scm) = (
+            &m.z[..],
+            &m.r[..],
+            &mut m.vz[..],
+            &mut m.vr[..],
+            &mut m.vt[..],
+            &mut m.erot[..],
+            &m.species[..],
+            &mut self.sigma_cr_max[..],
+        );
+        for first in (0..cells).step_by(CELL_BLOCK) {
+            let last = (first + CELL_BLOCK).min(cells);
+            let len = (offsets[last * ss] - offsets[first * ss]) as usize;
+            let (a, b) = z.split_at(len);
+            z = b;
+            let (ra, rb) = r.split_at(len);
+            r = rb;
+            let (vza, vzb) = std::mem::take(&mut vz).split_at_mut(len);
+            vz = vzb;
+            let (vra, vrb) = std::mem::take(&mut vr).split_at_mut(len);
+            vr = vrb;
+            let (vta, vtb) = std::mem::take(&mut vt).split_at_mut(len);
+            vt = vtb;
+            let (ea, eb) = std::mem::take(&mut erot).split_at_mut(len);
+            erot = eb;
+            let (sa, sb) = sp.split_at(len);
+            sp = sb;
+            let (ca, cb) = std::mem::take(&mut scm).split_at_mut((last - first) * ns * ns);
+            scm = cb;
+            blocks.push(Block {
+                first_cell: first,
+                z: a,
+                r: ra,
+                vz: vza,
+                vr: vra,
+                vt: vta,
+                erot: ea,
+                species: sa,
+                scm: ca,
+            });
+        }
+        let fnum = plan.fnum;
+        let dt = plan.dt;
+        let stats: Vec<CollisionStats> = blocks
+            .into_par_iter()
+            .map(|b| {
+                let mut rng = stream(
+                    seed,
+                    step,
+                    Stage::Collide,
+                    (b.first_cell / CELL_BLOCK) as u64,
+                );
+                let mut scratch = Scratch::default();
+                let mut st = CollisionStats::default();
+                let base = offsets[b.first_cell * ss] as usize;
+                let Block {
+                    z,
+                    r,
+                    vz,
+                    vr,
+                    vt,
+                    erot,
+                    species,
+                    scm,
+                    first_cell,
+                } = b;
+                let ncells = scm.len() / (ns * ns);
+                let mut sub_offsets = vec![0u32; ss + 1];
+                for k in 0..ncells {
+                    let c = first_cell + k;
+                    let lo = offsets[c * ss] as usize - base;
+                    let hi = offsets[(c + 1) * ss] as usize - base;
+                    if hi - lo < 2 {
+                        continue;
+                    }
+                    for (s, o) in sub_offsets.iter_mut().enumerate() {
+                        *o = offsets[c * ss + s] - offsets[c * ss];
+                    }
+                    let mut cell = CellMolecules {
+                        z: &z[lo..hi],
+                        r: &r[lo..hi],
+                        vz: &mut vz[lo..hi],
+                        vr: &mut vr[lo..hi],
+                        vt: &mut vt[lo..hi],
+                        erot: &mut erot[lo..hi],
+                        species: &species[lo..hi],
+                        sub_offsets: &sub_offsets,
+                    };
+                    let w = plan.weights.factor[c % rows];
+                    collide_cell(
+                        model,
+                        &mut cell,
+                        fnum * w,
+                        plan.grid.volume[c],
+                        dt,
+                        &mut scm[k * ns * ns..(k + 1) * ns * ns],
+                        &mut rng,
+                        &mut scratch,
+                        &mut st,
+                    );
+                }
+                st
+            })
+            .collect();
+        if self.sampling() {
+            for s in &stats {
+                self.collision_stats.merge(s);
+            }
+            self.sampled_cell_molecules += self.molecules.len() as u64;
+        }
+    }
+
+    /// Simulated molecules in the domain.
     pub fn population(&self) -> u64 {
         self.molecules.len() as u64
     }
@@ -286,6 +539,18 @@ impl Simulation {
     }
 }
 
+/// dst[k] = src[index[k]], in parallel.
+fn gather<T: Copy + Send + Sync + Default>(src: &[T], dst: &mut Vec<T>, index: &[u32]) {
+    dst.resize(index.len(), T::default());
+    dst.par_chunks_mut(CHUNK)
+        .zip(index.par_chunks(CHUNK))
+        .for_each(|(d, ix)| {
+            for (x, &i) in d.iter_mut().zip(ix) {
+                *x = src[i as usize];
+            }
+        });
+}
+
 /// How a run ended.
 #[derive(Debug, Clone, Copy)]
 pub struct RunOutcome {
@@ -293,25 +558,28 @@ pub struct RunOutcome {
     pub wall_time: Duration,
 }
 
-/// Fly one molecule of species `s` for time `dt`, count aperture crossings with its weight and
-/// reweight it if it changed radial band (see `weights`). Returns its fate; a molecule deleted
-/// by reweighting is reported as `Fate::Left(SurfaceRole::Wall)` and counted in `rep.deleted`.
+/// Fly one molecule of species `s` for time `dt`, count aperture crossings with its weight,
+/// resample its rotational energy after a diffuse wall re-emission, and reweight it if it
+/// changed radial row (see `weights`). Returns its fate; a molecule deleted by reweighting is
+/// reported as `Fate::Left(SurfaceRole::Wall)` and counted in `rep.deleted`.
 #[allow(clippy::too_many_arguments)]
 #[inline]
 fn fly_one<R: Rng>(
     plan: &Plan,
     step: u64,
     f: &mut Flight,
+    erot: &mut f64,
     s: usize,
     dt: f64,
     last: Option<usize>,
     rng: &mut R,
-    rep: &mut ChunkReport,
+    rep: &mut MoveReport,
 ) -> Fate {
     let w = &plan.weights;
     let band0 = w.band(f.r);
     let weight = w.factor[band0];
     let crossings = &mut rep.crossings;
+    let mut diffused = false;
     let fate = advance(
         &plan.geometry,
         &plan.wall[s],
@@ -321,6 +589,7 @@ fn fly_one<R: Rng>(
         plan.z_count,
         rng,
         &mut |sign, _r| crossings.add(s, sign, weight),
+        &mut diffused,
     );
     match fate {
         Fate::Left(SurfaceRole::UpstreamBoundary) => {
@@ -332,6 +601,10 @@ fn fly_one<R: Rng>(
             return fate;
         }
         Fate::Stays => {}
+    }
+    if diffused && plan.rot_dof[s] > 0 {
+        *erot =
+            crate::maxwell::rotational_energy(plan.rot_dof[s], plan.case.walls.temperature, rng);
     }
     let band1 = w.band(f.r);
     if band1 != band0 {
@@ -351,6 +624,7 @@ fn fly_one<R: Rng>(
                 let delay = rng.random_range(1..=CLONE_DELAY_MAX) as u64;
                 rep.clones.push(PendingClone {
                     flight: *f,
+                    erot: *erot,
                     species: s as u8,
                     release_step: step + delay,
                 });
@@ -361,7 +635,7 @@ fn fly_one<R: Rng>(
 }
 
 /// Initial fill: equilibrium gas at the upstream state upstream and in the bore, at the
-/// downstream state downstream, per radial band with the band's weight.
+/// downstream state downstream, per radial row with the row's weight.
 fn fill(plan: &Plan, mol: &mut Molecules) {
     let g = &plan.geometry;
     let w = &plan.weights;
@@ -399,6 +673,7 @@ fn fill(plan: &Plan, mol: &mut Molecules) {
                     let r = (r_lo * r_lo + u * (r_hi * r_hi - r_lo * r_lo)).sqrt();
                     let z = z_lo + rng.random::<f64>() * (z_hi - z_lo);
                     let v = crate::maxwell::velocity(sigma, &mut rng);
+                    let erot = crate::maxwell::rotational_energy(plan.rot_dof[s], temp, &mut rng);
                     mol.push(
                         &Flight {
                             z,
@@ -407,6 +682,7 @@ fn fill(plan: &Plan, mol: &mut Molecules) {
                             vr: v[0],
                             vt: v[1],
                         },
+                        erot,
                         s as u8,
                     );
                 }
