@@ -509,6 +509,8 @@ fn resolve(root: &Table, file: &str) -> Result<Case> {
                     "downstream_length",
                     "outer_radius",
                     "radial_weight_ratio",
+                    "cell_size",
+                    "subcells",
                 ],
             )?;
             let positive = |k: &str, min: f64| -> Result<Option<f64>> {
@@ -574,6 +576,8 @@ fn resolve(root: &Table, file: &str) -> Result<Case> {
                 "seed",
                 "time_step",
                 "molecules",
+                "molecules_per_cell",
+                "rotational_collision_number",
             ],
         )?;
         let target = s

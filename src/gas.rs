@@ -224,7 +224,7 @@ impl Mixture {
         (2.0 * BOLTZMANN * t / self.mean_mass()).sqrt()
     }
 
-    /// Display name such as "Ar" or "He 50% + Ar 50%".
+    /// Display name such as "Ar" or "He 0.5000 + Ar 0.5000" (mole fractions, in the order given).
     pub fn label(&self) -> String {
         if self.components.len() == 1 {
             return self.components[0].species.name.clone();

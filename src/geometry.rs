@@ -197,6 +197,12 @@ impl Axisymmetric {
         let Flight { z, r, vz, vr, vt } = *f;
         let mut best: Option<(f64, SurfaceId)> = None;
         let mut limit = t_max;
+        // Cheap rejection of cylinders: r² along a straight flight is convex in time, so the
+        // largest radius of the whole flight is at one of its ends; and z is monotonic.
+        let (xe, ye) = (r + vr * t_max, vt * t_max);
+        let r_far2 = (r * r).max(xe * xe + ye * ye);
+        let ze = z + vz * t_max;
+        let (z_a, z_b) = if ze < z { (ze, z) } else { (z, ze) };
         for (id, s) in self.surfaces.iter().enumerate() {
             let on_it = last == Some(id);
             let hit = match s.shape {
@@ -216,6 +222,9 @@ impl Axisymmetric {
                     }
                 }
                 SurfaceShape::CylinderR { r: rc, z_lo, z_hi } => {
+                    if (!on_it && r_far2 < rc * rc) || z_b < z_lo || z_a > z_hi {
+                        continue;
+                    }
                     cylinder_time(r, vr, vt, rc, on_it, limit).and_then(|ts| {
                         ts.into_iter().flatten().find(|&t| {
                             let zh = z + vz * t;

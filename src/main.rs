@@ -44,13 +44,17 @@ enum Command {
     },
     /// Validate a case and print the derived regime and numerics without running.
     Check {
+        /// Case file (TOML).
         case: PathBuf,
+        /// Override a case value, e.g. --set upstream.pressure="10 Pa" (repeatable).
         #[arg(long = "set", value_name = "KEY=VALUE")]
         set: Vec<String>,
     },
     /// Analytic estimates (mean free path, Kn, δ, free-molecular and isentropic flow).
     Estimate {
+        /// Case file (TOML).
         case: PathBuf,
+        /// Override a case value, e.g. --set upstream.pressure="10 Pa" (repeatable).
         #[arg(long = "set", value_name = "KEY=VALUE")]
         set: Vec<String>,
         /// Print JSON instead of text.
@@ -247,6 +251,9 @@ fn print_estimate(plan: &Plan) {
 
 fn print_numerics(plan: &Plan) {
     let n = &plan.choices;
+    for w in plan.warnings() {
+        println!("warning: {w}");
+    }
     println!(
         "numerics                 domain {}a upstream, {}a downstream, outer radius {}a; radial weight ratio {} over {} bands",
         n.upstream_length_radii, n.downstream_length_radii, n.outer_radius_radii, n.radial_weight_ratio, n.radial_bands
@@ -255,6 +262,27 @@ fn print_numerics(plan: &Plan) {
         "                         time step {:.4e} s, {} molecules at start, weight {:.4e}, start-up {} steps",
         n.time_step_s, n.target_molecules, n.molecule_weight, n.startup_steps
     );
+    println!(
+        "                         {} x {} cells of {:.4} a, {}x{} subcells; mode {}",
+        n.axial_cells,
+        n.radial_bands,
+        n.cell_size_radii,
+        n.subcells_per_direction,
+        n.subcells_per_direction,
+        if plan.collisions.is_some() {
+            "DSMC (collisions on)"
+        } else {
+            "free-molecular (collisions off)"
+        }
+    );
+    if plan.collisions.is_some() {
+        println!(
+            "quality (planned)        cell/λ1 {:.3}, collision separation/λ1 {:.3}, Δt/τ1 {:.3}",
+            n.cell_over_upstream_mean_free_path,
+            n.expected_separation_over_upstream_mean_free_path,
+            n.time_step_over_upstream_collision_time
+        );
+    }
 }
 
 fn print_result(s: &Summary) {
@@ -276,6 +304,16 @@ fn print_result(s: &Summary) {
         f.throughput_pa_m3_s, f.throughput_mbar_l_s, f.throughput_sccm, f.standard_conditions
     );
     println!("  conductance            {:.5e} L/s", f.conductance_l_s);
+    let q = &s.quality;
+    if let (Some(sep), Some(dtt)) = (
+        q.measured_separation_over_upstream_mean_free_path,
+        q.measured_time_step_over_collision_time,
+    ) {
+        println!("  quality (measured)     collision separation/λ1 {sep:.3}, Δt/τ {dtt:.3}, {:.1} molecules per cell", q.mean_molecules_per_cell);
+    }
+    for w in &q.warnings {
+        println!("  warning: {w}");
+    }
     for sp in &f.species {
         println!(
             "  {:<6} {:.5e} kg/s, {:.5e} mol/s (W_i = {:.5})",

@@ -32,8 +32,8 @@ pub struct WallReflection {
 }
 
 /// Maximum number of wall hits followed in one step before the flight is cut short (the
-/// molecule then stays at its last wall point, inside the gas). Reached only by pathological
-/// grazing flights; counted by the caller through `Flight` staying put.
+/// molecule then stays at its last wall point, inside the gas, and flies on next step). Reached
+/// only by pathological grazing flights.
 pub const MAX_HITS_PER_STEP: usize = 10_000;
 
 /// Fly `m` for time `dt`. `last` is the surface the molecule starts on (an injection boundary),

@@ -86,6 +86,27 @@ struct SortScratch {
     spare: Molecules,
 }
 
+/// Wall time spent in each stage of the step (for the benchmark and the run summary).
+#[derive(Debug, Clone, Copy, Default, PartialEq, serde::Serialize)]
+pub struct StageTimes {
+    pub release_s: f64,
+    pub move_s: f64,
+    pub compact_s: f64,
+    pub inject_s: f64,
+    pub sort_s: f64,
+    pub collide_s: f64,
+    pub record_s: f64,
+}
+
+/// Time one stage into `acc`.
+#[inline]
+fn timed<T>(acc: &mut f64, f: impl FnOnce() -> T) -> T {
+    let t0 = Instant::now();
+    let out = f();
+    *acc += t0.elapsed().as_secs_f64();
+    out
+}
+
 /// A simulation in progress.
 pub struct Simulation {
     pub plan: Plan,
@@ -105,6 +126,8 @@ pub struct Simulation {
     pub sampled_cell_molecules: u64,
     /// Start offsets of each (cell, subcell) in the sorted molecule arrays (length keys + 1).
     pub cell_offsets: Vec<u32>,
+    /// Time per stage since the start.
+    pub times: StageTimes,
     sort: SortScratch,
 }
 
@@ -139,22 +162,27 @@ impl Simulation {
             collision_stats: CollisionStats::default(),
             sampled_cell_molecules: 0,
             cell_offsets: Vec::new(),
+            times: StageTimes::default(),
             sort: SortScratch::default(),
         }
     }
 
     /// Advance by one time step.
     pub fn step(&mut self) {
-        self.release_clones();
-        let mut crossings = self.move_molecules();
-        self.molecules.compact();
-        self.inject(&mut crossings);
+        let mut t = self.times;
+        timed(&mut t.release_s, || self.release_clones());
+        let mut crossings = timed(&mut t.move_s, || self.move_molecules());
+        timed(&mut t.compact_s, || self.molecules.compact());
+        timed(&mut t.inject_s, || self.inject(&mut crossings));
         if self.plan.collisions.is_some() {
-            self.sort_by_cell();
-            self.collide();
+            timed(&mut t.sort_s, || self.sort_by_cell());
+            timed(&mut t.collide_s, || self.collide());
         }
-        self.flux
-            .record(&crossings, self.plan.fnum, &self.plan.masses);
+        let (fnum, masses) = (self.plan.fnum, &self.plan.masses);
+        timed(&mut t.record_s, || {
+            self.flux.record(&crossings, fnum, masses)
+        });
+        self.times = t;
         self.step += 1;
     }
 
@@ -480,7 +508,7 @@ impl Simulation {
         }
     }
 
-    /// Simulated molecules in the domain.
+    /// Simulated molecules in the domain (clones waiting for release are not counted).
     pub fn population(&self) -> u64 {
         self.molecules.len() as u64
     }

@@ -95,6 +95,25 @@ pub struct RunSummary {
     pub batch_length_steps: usize,
     pub balance: Balance,
     pub seed: u64,
+    /// Wall time per stage of the step, s.
+    pub stage_times: crate::simulation::StageTimes,
+}
+
+/// Quality figures that decide whether a DSMC result can be trusted: the planned values at
+/// upstream conditions and the values measured over the sampling steps (domain averages).
+/// Limits are common practice (see `numerics::limits`).
+#[derive(Debug, Clone, Serialize)]
+pub struct QualityReport {
+    pub planned_cell_over_mean_free_path: f64,
+    pub planned_separation_over_mean_free_path: f64,
+    pub planned_time_step_over_collision_time: f64,
+    /// Measured mean distance between collision partners over the upstream mean free path.
+    pub measured_separation_over_upstream_mean_free_path: Option<f64>,
+    /// Measured collisions per molecule per step (= Δt / mean collision time, domain average).
+    pub measured_time_step_over_collision_time: Option<f64>,
+    /// Mean simulated molecules per gas cell over the sampling steps.
+    pub mean_molecules_per_cell: f64,
+    pub warnings: Vec<String>,
 }
 
 /// Everything written to summary.json.
@@ -109,6 +128,7 @@ pub struct Summary {
     pub regime: RegimeSummary,
     pub reference: References,
     pub numerics: Choices,
+    pub quality: QualityReport,
     pub run: RunSummary,
     pub caution: &'static str,
 }
@@ -184,6 +204,7 @@ impl Summary {
             f64::NAN
         };
         let wall = outcome.wall_time.as_secs_f64();
+        let quality = quality_report(sim, sampled as u64);
         Summary {
             kinflux_version: env!("CARGO_PKG_VERSION"),
             title: case.title.clone(),
@@ -224,6 +245,7 @@ impl Summary {
                 isentropic_reduced_flow: est.isentropic_reduced_flow,
             },
             numerics: plan.choices.clone(),
+            quality,
             run: RunSummary {
                 steps: sim.step,
                 startup_steps: plan.startup_steps,
@@ -243,8 +265,57 @@ impl Summary {
                 batch_length_steps: batch_len,
                 balance: sim.balance,
                 seed: case.solver.seed,
+                stage_times: sim.times,
             },
             caution: CAUTION,
         }
+    }
+}
+
+/// Measured quality figures of a simulation (see [`QualityReport`]).
+pub fn quality_report(sim: &Simulation, sampling_steps: u64) -> QualityReport {
+    let plan = &sim.plan;
+    let c = &plan.choices;
+    let st = &sim.collision_stats;
+    let lambda1 = plan.estimate.upstream_mean_free_path;
+    let gas_cells = plan.grid.volume.iter().filter(|&&v| v > 0.0).count() as f64;
+    let (sep, dt_tau) =
+        if plan.collisions.is_some() && st.collisions > 0 && sim.sampled_cell_molecules > 0 {
+            (
+                Some(st.separation_sum / st.collisions as f64 / lambda1),
+                Some(2.0 * st.collisions as f64 / sim.sampled_cell_molecules as f64),
+            )
+        } else {
+            (None, None)
+        };
+    let mean_ppc = if sampling_steps > 0 && plan.collisions.is_some() {
+        sim.sampled_cell_molecules as f64 / sampling_steps as f64 / gas_cells
+    } else {
+        sim.population() as f64 / gas_cells
+    };
+    let mut warnings = plan.warnings();
+    use crate::numerics::limits;
+    if let Some(s) = sep {
+        if s > limits::SEPARATION_OVER_LAMBDA {
+            warnings.push(format!(
+                "measured collision separation is {s:.2} upstream mean free paths (common practice: below {})",
+                limits::SEPARATION_OVER_LAMBDA
+            ));
+        }
+    }
+    if plan.collisions.is_some() && mean_ppc < limits::MOLECULES_PER_CELL {
+        warnings.push(format!(
+            "mean of {mean_ppc:.1} simulated molecules per cell (common practice: at least {})",
+            limits::MOLECULES_PER_CELL
+        ));
+    }
+    QualityReport {
+        planned_cell_over_mean_free_path: c.cell_over_upstream_mean_free_path,
+        planned_separation_over_mean_free_path: c.expected_separation_over_upstream_mean_free_path,
+        planned_time_step_over_collision_time: c.time_step_over_upstream_collision_time,
+        measured_separation_over_upstream_mean_free_path: sep,
+        measured_time_step_over_collision_time: dt_tau,
+        mean_molecules_per_cell: mean_ppc,
+        warnings,
     }
 }

@@ -22,10 +22,10 @@ impl Dimension {
     /// Human description of the accepted units, used in error messages.
     pub fn expected(self) -> &'static str {
         match self {
-            Dimension::Pressure => "a pressure with a unit (Pa, kPa, MPa, mbar, bar, Torr, mTorr, psi, atm), e.g. \"50 Pa\"",
+            Dimension::Pressure => "a pressure with a unit (Pa, hPa, kPa, MPa, µbar, mbar, bar, mTorr, Torr, psi, atm), e.g. \"50 Pa\"",
             Dimension::Temperature => "a temperature with a unit (K, °C or degC), e.g. \"295 K\"",
             Dimension::Length => "a length with a unit (m, cm, mm, µm or um, nm, in), e.g. \"0.2 mm\"",
-            Dimension::Time => "a time with a unit (s, ms, min, h), e.g. \"10 min\"",
+            Dimension::Time => "a time with a unit (µs, ms, s, min, h), e.g. \"10 min\"",
             Dimension::Flow => "a flow with a unit (kg/s, g/s, mg/s, sccm, slm, Pa·m3/s, mbar·L/s, Torr·L/s), e.g. \"5 sccm\"",
         }
     }
@@ -144,8 +144,8 @@ fn time_factor(unit: &str) -> Option<f64> {
     })
 }
 
-fn wrong_unit(unit: &str, dim: Dimension) -> String {
-    format!("unit {unit:?} is not {}", dim.expected())
+fn wrong_unit(unit: &str, _dim: Dimension) -> String {
+    format!("the unit {unit:?} is not one of these")
 }
 
 /// Split "12.5 mbar" or "12.5mbar" into (12.5, "mbar").

@@ -10,3 +10,4 @@ mod free_molecular;
 mod gas;
 mod invariants;
 mod maxwell;
+mod transition;
