@@ -202,6 +202,8 @@ pub struct Scratch {
     idx: Vec<u32>,
     /// Group starts, index species * subcells + subcell; length species * subcells + 1.
     start: Vec<u32>,
+    /// Fill cursors of the grouping sort.
+    fill: Vec<u32>,
 }
 
 /// Collide the molecules of one cell for one step.
@@ -226,28 +228,32 @@ pub fn collide_cell<R: Rng + ?Sized>(
     }
     let ns = model.species;
     let nsub = cell.sub_offsets.len() - 1;
-    // Group by (species, subcell): counting sort into scratch.
+    // Group by (species, subcell): counting sort into scratch (a pure gas is already grouped).
     let groups = ns * nsub;
     scratch.start.clear();
-    scratch.start.resize(groups + 1, 0);
-    for s in 0..nsub {
-        for i in cell.sub_offsets[s]..cell.sub_offsets[s + 1] {
-            let g = cell.species[i as usize] as usize * nsub + s;
-            scratch.start[g + 1] += 1;
-        }
-    }
-    for g in 0..groups {
-        scratch.start[g + 1] += scratch.start[g];
-    }
     scratch.idx.clear();
-    scratch.idx.resize(n, 0);
-    {
-        let mut fill: Vec<u32> = scratch.start[..groups].to_vec();
+    if ns == 1 {
+        scratch.start.extend_from_slice(cell.sub_offsets);
+        scratch.idx.extend(0..n as u32);
+    } else {
+        scratch.start.resize(groups + 1, 0);
         for s in 0..nsub {
             for i in cell.sub_offsets[s]..cell.sub_offsets[s + 1] {
                 let g = cell.species[i as usize] as usize * nsub + s;
-                scratch.idx[fill[g] as usize] = i;
-                fill[g] += 1;
+                scratch.start[g + 1] += 1;
+            }
+        }
+        for g in 0..groups {
+            scratch.start[g + 1] += scratch.start[g];
+        }
+        scratch.idx.resize(n, 0);
+        scratch.fill.clear();
+        scratch.fill.extend_from_slice(&scratch.start[..groups]);
+        for s in 0..nsub {
+            for i in cell.sub_offsets[s]..cell.sub_offsets[s + 1] {
+                let g = cell.species[i as usize] as usize * nsub + s;
+                scratch.idx[scratch.fill[g] as usize] = i;
+                scratch.fill[g] += 1;
             }
         }
     }

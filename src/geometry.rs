@@ -169,6 +169,22 @@ impl Axisymmetric {
         in_partition_z && r > self.radius + eps
     }
 
+    /// A lower bound of the distance from (z, r) to every surface and to the measurement plane
+    /// z = t, m. The distance from a point to a surface of revolution equals the distance in
+    /// the meridian half-plane, so a flight shorter than this cannot meet anything.
+    #[inline]
+    pub fn clearance(&self, z: f64, r: f64) -> f64 {
+        let mut d = (z - self.z_min).min(self.z_max - z).min(self.r_max - r);
+        if z < 0.0 {
+            d = d.min(-z);
+        } else if z > self.thickness {
+            d = d.min(z - self.thickness);
+        } else {
+            d = d.min(self.radius - r).min(z).min(self.thickness - z);
+        }
+        d
+    }
+
     /// Gas volume of the upstream region (z < 0), m³.
     pub fn upstream_volume(&self) -> f64 {
         std::f64::consts::PI * self.r_max * self.r_max * (-self.z_min)

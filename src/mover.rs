@@ -55,6 +55,19 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64)>(
     diffused: &mut bool,
 ) -> Fate {
     let mut remaining = dt;
+    // Fast path: a flight shorter than the clearance meets no surface and no plane.
+    if last.is_none() {
+        let reach2 = (m.vz * m.vz + m.vr * m.vr + m.vt * m.vt) * dt * dt;
+        let c = geom.clearance(m.z, m.r);
+        if c > 0.0 && reach2 < c * c {
+            let (zn, rn, vrn, vtn) = fly(m.z, m.r, m.vz, m.vr, m.vt, dt);
+            m.z = zn;
+            m.r = rn;
+            m.vr = vrn;
+            m.vt = vtn;
+            return Fate::Stays;
+        }
+    }
     for _ in 0..MAX_HITS_PER_STEP {
         let hit = geom.first_hit(m, remaining, last);
         let t = hit.map_or(remaining, |(t, _)| t);

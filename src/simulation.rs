@@ -358,13 +358,7 @@ impl Simulation {
         }
         let src = &s.source;
         let sp = &mut s.spare;
-        gather(&m.z, &mut sp.z, src);
-        gather(&m.r, &mut sp.r, src);
-        gather(&m.vz, &mut sp.vz, src);
-        gather(&m.vr, &mut sp.vr, src);
-        gather(&m.vt, &mut sp.vt, src);
-        gather(&m.erot, &mut sp.erot, src);
-        gather(&m.species, &mut sp.species, src);
+        gather_all(m, sp, src);
         std::mem::swap(m, sp);
     }
 
@@ -567,14 +561,35 @@ impl Simulation {
     }
 }
 
-/// dst[k] = src[index[k]], in parallel.
-fn gather<T: Copy + Send + Sync + Default>(src: &[T], dst: &mut Vec<T>, index: &[u32]) {
-    dst.resize(index.len(), T::default());
-    dst.par_chunks_mut(CHUNK)
+/// dst[k] = src[index[k]] for every molecule array, in one parallel pass.
+fn gather_all(src: &Molecules, dst: &mut Molecules, index: &[u32]) {
+    let n = index.len();
+    dst.z.resize(n, 0.0);
+    dst.r.resize(n, 0.0);
+    dst.vz.resize(n, 0.0);
+    dst.vr.resize(n, 0.0);
+    dst.vt.resize(n, 0.0);
+    dst.erot.resize(n, 0.0);
+    dst.species.resize(n, 0);
+    dst.z
+        .par_chunks_mut(CHUNK)
+        .zip(dst.r.par_chunks_mut(CHUNK))
+        .zip(dst.vz.par_chunks_mut(CHUNK))
+        .zip(dst.vr.par_chunks_mut(CHUNK))
+        .zip(dst.vt.par_chunks_mut(CHUNK))
+        .zip(dst.erot.par_chunks_mut(CHUNK))
+        .zip(dst.species.par_chunks_mut(CHUNK))
         .zip(index.par_chunks(CHUNK))
-        .for_each(|(d, ix)| {
-            for (x, &i) in d.iter_mut().zip(ix) {
-                *x = src[i as usize];
+        .for_each(|(((((((z, r), vz), vr), vt), erot), sp), ix)| {
+            for (k, &i) in ix.iter().enumerate() {
+                let i = i as usize;
+                z[k] = src.z[i];
+                r[k] = src.r[i];
+                vz[k] = src.vz[i];
+                vr[k] = src.vr[i];
+                vt[k] = src.vt[i];
+                erot[k] = src.erot[i];
+                sp[k] = src.species[i];
             }
         });
 }

@@ -6,6 +6,7 @@ mod util;
 mod analytic;
 mod case_errors;
 mod collisions;
+mod couette;
 mod free_molecular;
 mod gas;
 mod invariants;
