@@ -92,3 +92,29 @@ fn helium_argon_mixture_follows_grahams_law() {
         "He/Ar molar flow ratio {measured}, Graham {graham}"
     );
 }
+
+/// Honest uncertainty: over 40 seeds of a cheap free-molecular case the exact value W = 1
+/// (Knudsen effusion) lies inside the reported 95 % interval in roughly 95 % of the runs; the
+/// test asserts at least 85 % (34 of 40), which a correct interval fails with probability
+/// below 1 % (binomial tail), and also that the intervals are not grossly too wide (at most 40
+/// of 40 inside while the mean half-width stays below 2 %).
+#[test]
+fn reported_interval_covers_the_exact_value() {
+    let runs = 40;
+    let mut inside = 0;
+    let mut width = 0.0;
+    for seed in 0..runs {
+        let text = fm_case("{ Ar = 1.0 }", "0.5 Pa", "0 Pa", "0.2 mm", "0 mm", "molecules = 5000")
+            .replace("seed = 11", &format!("seed = {}", 1000 + seed))
+            .replace("target_uncertainty = 0.003", "target_uncertainty = 0.02");
+        let (_, s) = run_case(&text);
+        let (w, ci) = (s.flow.reduced_flow_rate, s.flow.reduced_flow_rate_ci95);
+        if (w - 1.0).abs() <= ci {
+            inside += 1;
+        }
+        width += ci / runs as f64;
+    }
+    eprintln!("coverage {inside}/{runs}, mean half-width {width:.4}");
+    assert!(inside >= 34, "only {inside} of {runs} intervals contain W = 1");
+    assert!(width < 0.02, "mean half-width {width}");
+}
