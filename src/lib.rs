@@ -12,6 +12,7 @@
 //! ```
 
 pub mod analytic;
+pub mod bench;
 pub mod case;
 pub mod collide;
 pub mod constants;

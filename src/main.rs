@@ -63,6 +63,15 @@ enum Command {
     },
     /// List the built-in gas library with sources.
     Gases,
+    /// Measure speed on fixed reference workloads beside the memory bandwidth.
+    Bench {
+        /// Worker threads (default: all cores).
+        #[arg(long)]
+        threads: Option<usize>,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
 }
 
 fn main() -> ExitCode {
@@ -104,6 +113,53 @@ fn run(cli: Cli) -> anyhow::Result<()> {
                 println!("{}", serde_json::to_string_pretty(&plan.estimate)?);
             } else {
                 print_estimate(&plan);
+            }
+            Ok(())
+        }
+        Command::Bench { threads, json } => {
+            if threads == Some(0) {
+                return Err(kinflux::Error::Input(
+                    "--threads 0: expected at least 1 thread".into(),
+                )
+                .into());
+            }
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(threads.unwrap_or(0))
+                .build()?;
+            let n = pool.current_num_threads();
+            let report = pool.install(|| kinflux::bench::run(n));
+            if json {
+                println!("{}", serde_json::to_string_pretty(&report)?);
+            } else {
+                println!(
+                    "kinflux {} benchmark on {} thread(s)",
+                    report.kinflux_version, report.threads
+                );
+                println!(
+                    "memory copy bandwidth   {:.1} GB/s (1 thread), {:.1} GB/s (all threads)",
+                    report.copy_bandwidth_single_thread_gb_s,
+                    report.copy_bandwidth_all_threads_gb_s
+                );
+                for w in &report.workloads {
+                    println!("{}:", w.name);
+                    println!(
+                        "  {:.3e} particle-steps/s ({:.3e} per core), {:.3e} collisions/s",
+                        w.particle_steps_per_s, w.particle_steps_per_s_per_core, w.collisions_per_s
+                    );
+                    println!(
+                        "  {} steps, {:.0} molecules, {:.2} s",
+                        w.steps, w.mean_molecules, w.wall_time_s
+                    );
+                    let t = &w.stage_times;
+                    println!(
+                        "  stages (s): move {:.2}, sort {:.2}, collide {:.2}, inject {:.2}, compact {:.2}, release {:.2}",
+                        t.move_s, t.sort_s, t.collide_s, t.inject_s, t.compact_s, t.release_s
+                    );
+                    println!(
+                        "  memory: {} B/molecule in the arrays, {:.0} B/molecule resident; modelled {:.0} B per particle-step = {:.1} % of the copy bandwidth",
+                        w.array_bytes_per_molecule, w.resident_bytes_per_molecule, w.modelled_bytes_per_particle_step, 100.0 * w.fraction_of_copy_bandwidth
+                    );
+                }
             }
             Ok(())
         }

@@ -77,6 +77,10 @@ impl MoveReport {
     }
 }
 
+/// What one inflow element produced in a step: molecules drawn, survivors (flight, rotational
+/// energy, species) and the report of their entry flights.
+type InflowUnit = (u64, Vec<(Flight, f64, u8)>, MoveReport);
+
 /// Per-step buffers of the sort (never part of the saved state).
 #[derive(Default)]
 struct SortScratch {
@@ -277,46 +281,60 @@ impl Simulation {
         let plan = &self.plan;
         let step = self.step;
         let seed = plan.case.solver.seed;
-        let mut rep = MoveReport::new(plan.masses.len());
-        let mut injected = 0;
-        for (ei, el) in plan.inflow.iter().enumerate() {
-            let mut rng = stream(seed, step, Stage::Inject, ei as u64);
-            let n = el.count(&mut rng);
-            injected += n;
-            let s = el.species as usize;
-            let t_res = if el.upstream {
-                plan.case.upstream.temperature
-            } else {
-                plan.case.downstream.temperature
-            };
-            for _ in 0..n {
-                let mut f = el.sample(&mut rng);
-                let mut erot = crate::maxwell::rotational_energy(plan.rot_dof[s], t_res, &mut rng);
-                let t = plan.dt * rng.random::<f64>();
-                // A molecule that dies on its entry flight (left or deleted by weighting) is
-                // counted by `fly_one`, so the balance still closes.
-                if fly_one(
-                    plan,
-                    step,
-                    &mut f,
-                    &mut erot,
-                    s,
-                    t,
-                    Some(el.surface),
-                    &mut rng,
-                    &mut rep,
-                ) == Fate::Stays
-                {
-                    self.molecules.push(&f, erot, el.species);
+        let nspecies = plan.masses.len();
+        // Each inflow element is a work unit with its own stream; results are appended in
+        // element order, so the outcome does not depend on the thread count.
+        let units: Vec<InflowUnit> = plan
+            .inflow
+            .par_iter()
+            .enumerate()
+            .map(|(ei, el)| {
+                let mut rng = stream(seed, step, Stage::Inject, ei as u64);
+                let mut rep = MoveReport::new(nspecies);
+                let n = el.count(&mut rng);
+                let s = el.species as usize;
+                let t_res = if el.upstream {
+                    plan.case.upstream.temperature
+                } else {
+                    plan.case.downstream.temperature
+                };
+                let mut born = Vec::with_capacity(n as usize);
+                for _ in 0..n {
+                    let mut f = el.sample(&mut rng);
+                    let mut erot =
+                        crate::maxwell::rotational_energy(plan.rot_dof[s], t_res, &mut rng);
+                    let t = plan.dt * rng.random::<f64>();
+                    // A molecule that dies on its entry flight (left or deleted by weighting)
+                    // is counted by `fly_one`, so the balance still closes.
+                    let fate = fly_one(
+                        plan,
+                        step,
+                        &mut f,
+                        &mut erot,
+                        s,
+                        t,
+                        Some(el.surface),
+                        &mut rng,
+                        &mut rep,
+                    );
+                    if fate == Fate::Stays {
+                        born.push((f, erot, el.species));
+                    }
                 }
+                (n, born, rep)
+            })
+            .collect();
+        for (n, born, rep) in units {
+            self.balance.injected += n;
+            self.balance.left_upstream += rep.left_up;
+            self.balance.left_downstream += rep.left_down;
+            self.balance.deleted_by_weighting += rep.deleted;
+            self.pending.extend(rep.clones);
+            crossings.merge(&rep.crossings);
+            for (f, erot, sp) in born {
+                self.molecules.push(&f, erot, sp);
             }
         }
-        self.balance.injected += injected;
-        self.balance.left_upstream += rep.left_up;
-        self.balance.left_downstream += rep.left_down;
-        self.balance.deleted_by_weighting += rep.deleted;
-        self.pending.extend(rep.clones);
-        crossings.merge(&rep.crossings);
     }
 
     /// Stage: counting sort of the molecules by (cell, subcell); the arrays are reordered so
