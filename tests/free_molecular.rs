@@ -104,9 +104,16 @@ fn reported_interval_covers_the_exact_value() {
     let mut inside = 0;
     let mut width = 0.0;
     for seed in 0..runs {
-        let text = fm_case("{ Ar = 1.0 }", "0.5 Pa", "0 Pa", "0.2 mm", "0 mm", "molecules = 5000")
-            .replace("seed = 11", &format!("seed = {}", 1000 + seed))
-            .replace("target_uncertainty = 0.003", "target_uncertainty = 0.02");
+        let text = fm_case(
+            "{ Ar = 1.0 }",
+            "0.5 Pa",
+            "0 Pa",
+            "0.2 mm",
+            "0 mm",
+            "molecules = 5000",
+        )
+        .replace("seed = 11", &format!("seed = {}", 1000 + seed))
+        .replace("target_uncertainty = 0.003", "target_uncertainty = 0.02");
         let (_, s) = run_case(&text);
         let (w, ci) = (s.flow.reduced_flow_rate, s.flow.reduced_flow_rate_ci95);
         if (w - 1.0).abs() <= ci {
@@ -115,6 +122,9 @@ fn reported_interval_covers_the_exact_value() {
         width += ci / runs as f64;
     }
     eprintln!("coverage {inside}/{runs}, mean half-width {width:.4}");
-    assert!(inside >= 34, "only {inside} of {runs} intervals contain W = 1");
+    assert!(
+        inside >= 34,
+        "only {inside} of {runs} intervals contain W = 1"
+    );
     assert!(width < 0.02, "mean half-width {width}");
 }
