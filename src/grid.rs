@@ -159,6 +159,11 @@ impl Grid {
         }
     }
 
+    /// Axial columns of the upstream zone (z < 0); they come first in the cell order.
+    pub fn upstream_columns(&self) -> usize {
+        self.z.zones[0].count
+    }
+
     /// Number of cells (including solid ones).
     pub fn cells(&self) -> usize {
         self.volume.len()

@@ -365,7 +365,10 @@ fn print_result(s: &Summary) {
         q.measured_separation_over_upstream_mean_free_path,
         q.measured_time_step_over_collision_time,
     ) {
-        println!("  quality (measured)     collision separation/λ1 {sep:.3}, Δt/τ {dtt:.3}, {:.1} molecules per cell", q.mean_molecules_per_cell);
+        println!(
+            "  quality (measured)     collision separation/λ1 {sep:.3}, Δt/τ {dtt:.3}, {:.1} molecules per upstream cell",
+            q.mean_molecules_per_upstream_cell
+        );
     }
     for w in &q.warnings {
         println!("  warning: {w}");

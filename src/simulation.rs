@@ -128,6 +128,8 @@ pub struct Simulation {
     pub collision_stats: CollisionStats,
     /// Molecule-steps counted in cells during sampling (for molecules per cell).
     pub sampled_cell_molecules: u64,
+    /// Molecule-steps counted in the upstream cells (z < 0) during sampling.
+    pub sampled_upstream_molecules: u64,
     /// Start offsets of each (cell, subcell) in the sorted molecule arrays (length keys + 1).
     pub cell_offsets: Vec<u32>,
     /// Time per stage since the start.
@@ -165,6 +167,7 @@ impl Simulation {
             sigma_cr_max,
             collision_stats: CollisionStats::default(),
             sampled_cell_molecules: 0,
+            sampled_upstream_molecules: 0,
             cell_offsets: Vec::new(),
             times: StageTimes::default(),
             sort: SortScratch::default(),
@@ -517,6 +520,9 @@ impl Simulation {
                 self.collision_stats.merge(s);
             }
             self.sampled_cell_molecules += self.molecules.len() as u64;
+            // Upstream cells are the first axial zone, so they lead the sorted arrays.
+            let up_cells = self.plan.grid.upstream_columns() * rows;
+            self.sampled_upstream_molecules += self.cell_offsets[up_cells * ss] as u64;
         }
     }
 
