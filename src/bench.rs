@@ -143,6 +143,7 @@ pub fn workload(
     st.sort_s -= times0.sort_s;
     st.collide_s -= times0.collide_s;
     st.record_s -= times0.record_s;
+    st.sample_s -= times0.sample_s;
     let array_bytes = Molecules::BYTES_PER_MOLECULE;
     // Passes over the arrays per step: move reads and writes them; with collisions the sort
     // reads and writes them again and the collision stage reads them.

@@ -260,6 +260,37 @@ fn cmd_run(
     output::write_json(&out.join("summary.json"), &summary)?;
     print_result(&summary);
     println!("wrote {}", out.join("summary.json").display());
+    let c = &sim.plan.case;
+    let meta = [
+        ("title", c.title.clone()),
+        ("kinflux_version", env!("CARGO_PKG_VERSION").to_string()),
+        ("case_file", c.source.clone()),
+        ("gas", c.gas.label()),
+        ("mode", summary.mode.to_string()),
+        ("sampling_steps", sim.fields.steps.to_string()),
+        ("molecule_weight", format!("{:e}", sim.plan.fnum)),
+        ("time_step_s", format!("{:e}", sim.plan.dt)),
+        ("aperture_diameter_m", format!("{:e}", c.aperture.diameter)),
+        (
+            "partition_thickness_m",
+            format!("{:e}", c.aperture.thickness),
+        ),
+        (
+            "coordinates",
+            "z axial (flow +z, partition at 0 <= z <= thickness), r radial; arrays [nz][nr]"
+                .to_string(),
+        ),
+        ("caution", kinflux::summary::CAUTION.to_string()),
+    ];
+    let fields = sim.fields.fields(&sim.plan);
+    match kinflux::field_output::write(&out, &sim.plan, &fields, &meta) {
+        Ok(files) => {
+            for f in files {
+                println!("wrote {}", f.display());
+            }
+        }
+        Err(e) => eprintln!("kinflux: warning: field files not written: {e}"),
+    }
     Ok(())
 }
 

@@ -16,6 +16,7 @@ use crate::monitor::{batch_means, BatchEstimate, StopReason};
 use crate::mover::{advance, Fate, Flight};
 use crate::numerics::{Plan, CHUNK};
 use crate::particles::{Molecules, DEAD};
+use crate::sample::FieldSampler;
 use crate::streams::{stream, Stage};
 use crate::weights::CLONE_DELAY_MAX;
 use rand::Rng;
@@ -100,6 +101,7 @@ pub struct StageTimes {
     pub sort_s: f64,
     pub collide_s: f64,
     pub record_s: f64,
+    pub sample_s: f64,
 }
 
 /// Time one stage into `acc`.
@@ -134,6 +136,8 @@ pub struct Simulation {
     pub cell_offsets: Vec<u32>,
     /// Time per stage since the start.
     pub times: StageTimes,
+    /// Per-cell samples accumulated after start-up.
+    pub fields: FieldSampler,
     sort: SortScratch,
 }
 
@@ -147,6 +151,7 @@ impl Simulation {
             initial: molecules.len() as u64,
             ..Balance::default()
         };
+        let fields = FieldSampler::new(plan.grid.cells(), species);
         let sigma_cr_max = if plan.collisions.is_some() {
             let mut v = Vec::with_capacity(plan.grid.cells() * species * species);
             for _ in 0..plan.grid.cells() {
@@ -170,6 +175,7 @@ impl Simulation {
             sampled_upstream_molecules: 0,
             cell_offsets: Vec::new(),
             times: StageTimes::default(),
+            fields,
             sort: SortScratch::default(),
         }
     }
@@ -177,10 +183,12 @@ impl Simulation {
     /// Advance by one time step.
     pub fn step(&mut self) {
         let mut t = self.times;
-        timed(&mut t.release_s, || self.release_clones());
         let mut crossings = timed(&mut t.move_s, || self.move_molecules());
         timed(&mut t.compact_s, || self.molecules.compact());
         timed(&mut t.inject_s, || self.inject(&mut crossings));
+        // Clones join at the end of their release step, where the time-shifted copy of the
+        // original sits at the cloning position; they fly from the next step on.
+        timed(&mut t.release_s, || self.release_clones());
         if self.plan.collisions.is_some() {
             timed(&mut t.sort_s, || self.sort_by_cell());
             timed(&mut t.collide_s, || self.collide());
@@ -189,6 +197,12 @@ impl Simulation {
         timed(&mut t.record_s, || {
             self.flux.record(&crossings, fnum, masses)
         });
+        if self.sampling() {
+            let (plan, m, f) = (&self.plan, &self.molecules, &mut self.fields);
+            timed(&mut t.sample_s, || {
+                f.sample(plan, m, |i| plan.grid.cell(m.z[i], m.r[i]))
+            });
+        }
         self.times = t;
         self.step += 1;
     }
@@ -198,7 +212,10 @@ impl Simulation {
         self.step >= self.plan.startup_steps
     }
 
-    /// Stage: clones whose delay has passed join the domain.
+    /// Stage: clones whose delay has passed join the domain (at the end of the step, so that
+    /// they are present in this step's collisions and samples at the position where they were
+    /// made, exactly as a time-shifted copy of the original; released before the move, a clone
+    /// would skip that snapshot and bias the density low where clones are made).
     fn release_clones(&mut self) {
         let step = self.step;
         let mut released = 0;

@@ -7,8 +7,8 @@
 //! probability w_old/w_new (outward) or duplicated so that on average w_old/w_new copies exist
 //! (inward). Duplicates are NOT released at once: identical copies flying in lock-step stay
 //! correlated until a wall or a collision separates them, so each clone waits in a queue for a
-//! random 1..=CLONE_DELAY_MAX steps and is then released at the position and velocity the
-//! original had when it was cloned. (Delayed insertion is Bird's remedy for clone correlation,
+//! random 1..=CLONE_DELAY_MAX steps and is then released, at the end of a step, at the position
+//! and velocity the original had when it was cloned — a time-shifted copy of the original. (Delayed insertion is Bird's remedy for clone correlation,
 //! Bird 1994 §15.2; the random delay spreads the clones of one molecule over several steps. In a
 //! steady flow a delayed release changes nothing in expectation.)
 //! Invariant: the expected real-molecule count is conserved by every row change.

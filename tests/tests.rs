@@ -7,6 +7,7 @@ mod analytic;
 mod case_errors;
 mod collisions;
 mod couette;
+mod fields;
 mod free_molecular;
 mod gas;
 mod invariants;
