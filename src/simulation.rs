@@ -1,8 +1,8 @@
 //! The step loop: one simulation of one case, stage by stage.
 //!
-//! A step is a readable list of stages: release delayed clones → move (wall hits, aperture
-//! counting, radial reweighting) → compact → inject from the reservoirs → sort by cell →
-//! collide → record the flux. The move runs in parallel over fixed chunks of [`CHUNK`]
+//! A step is a readable list of stages: move (wall hits, aperture counting, radial
+//! reweighting) → compact → inject from the reservoirs → release delayed clones → sort by cell
+//! → collide → record the flux → sample the fields (after start-up). The move runs in parallel over fixed chunks of [`CHUNK`]
 //! molecules and the collisions over fixed blocks of cells, each work unit with its own random
 //! stream keyed by (seed, step, stage, unit); results are merged in unit order, so a run is
 //! bit-identical for any number of threads. Invariants: after every step no molecule lies
