@@ -8,7 +8,10 @@
 //! §11.2): number density, mass density, mass-average velocity, translational temperature per
 //! direction from the peculiar velocity, rotational temperature 2ΣE_rot/(kΣζ), overall
 //! temperature (3T_tr + ζ̄T_rot)/(3 + ζ̄), pressure n k T_tr, Mach number |u|/sqrt(γkT_tr/m̄),
-//! local mean free path and Knudsen number λ/D. Invariant: accumulators only grow during
+//! local mean free path and Knudsen number λ/D. Samples are taken after the collision stage, which
+//! is exact for n, u and T but understates non-equilibrium moments (the anisotropy of the
+//! directional temperatures) by about ½(p/μ)Δt, a few per cent at the default time step (the
+//! collision stage relaxes them and the next flight rebuilds them). Invariant: accumulators only grow during
 //! sampling; a cell never sampled reports NaN fields, not zeros.
 
 use crate::constants::BOLTZMANN;

@@ -548,9 +548,18 @@ impl Simulation {
         self.molecules.len() as u64
     }
 
-    /// Flow-rate estimate from the steps after start-up (None until enough steps).
+    /// First step of the steady state: the planned start-up, or later if the MSER-5 rule
+    /// applied to the flow-rate history says the transient lasted longer.
+    pub fn steady_state_step(&self) -> usize {
+        let s = &self.flux.mass_per_step;
+        (self.plan.startup_steps as usize)
+            .max(crate::monitor::mser5(s))
+            .min(s.len())
+    }
+
+    /// Flow-rate estimate from the steady-state steps (None until enough steps).
     pub fn mass_flow_estimate(&self) -> Option<BatchEstimate> {
-        let start = (self.plan.startup_steps as usize).min(self.flux.steps());
+        let start = self.steady_state_step();
         batch_means(&self.flux.mass_per_step[start..]).map(|mut e| {
             e.mean /= self.plan.dt;
             e.half_width /= self.plan.dt;

@@ -83,6 +83,9 @@ pub struct References {
 pub struct RunSummary {
     pub steps: u64,
     pub startup_steps: u64,
+    /// First step of the flow-rate statistics: the planned start-up or the MSER-5 truncation
+    /// point (White 1997), whichever is later.
+    pub steady_state_step: u64,
     pub sampling_steps: u64,
     pub wall_time_s: f64,
     pub particle_steps: u64,
@@ -144,7 +147,7 @@ impl Summary {
         let case = &plan.case;
         let est: &Estimate = &plan.estimate;
         let dt = plan.dt;
-        let start = (plan.startup_steps as usize).min(sim.flux.steps());
+        let start = sim.steady_state_step();
         let sampled = sim.flux.steps() - start;
         let mass = sim.mass_flow_estimate();
         let (mdot, mdot_ci, batch_len) = match mass {
@@ -253,6 +256,7 @@ impl Summary {
             run: RunSummary {
                 steps: sim.step,
                 startup_steps: plan.startup_steps,
+                steady_state_step: start as u64,
                 sampling_steps: sampled as u64,
                 wall_time_s: wall,
                 particle_steps: sim.particle_steps,

@@ -312,21 +312,31 @@ fn report(name: &str, r: &CouetteResult) {
     );
 }
 
-/// The viscosity check. VHS argon at Kn = 0.02 with the plates a most probable speed apart
-/// (core shear rate about 0.03 p/μ, so the non-Newtonian terms of the Burnett and higher orders
-/// stay well below 1 %), 20 molecules per cell of λ/2 and two subcells of λ/4, Δt = 0.2 λ/c̄.
-/// Expected μ/μ_CE: 1 within the 3 % tolerance, the known DSMC excesses being below 1 %
-/// together: cell size +0.7 % at Δx = λ/4 (hard-sphere value, Alexander, Garcia & Alder 1998,
-/// from memory), time step +0.3 % at c̄Δt = 0.2 λ (μ/μ0 = 1 + (16/75π)(c̄Δt/λ)², Garcia &
-/// Wagner 2000, Phys. Fluids 12, 2621, and Hadjiconstantinou 2000, Phys. Fluids 12, 2634; from
-/// memory), and the exact VHS viscosity lies within the 1.6 % by which the exact hard-sphere
-/// viscosity exceeds the first approximation (Chapman & Cowling 1970; from memory). The
-/// statistical error is set by the thermal fluctuations of the velocity profile (Hadjiconstantinou,
-/// Garcia, Bazant & He 2003, J. Comput. Phys. 187, 274): six seeds of this set-up gave
-/// 0.973–1.010 (standard deviation 1.3 %, mean 0.993).
+/// The viscosity check: VHS argon at Kn = 0.02 with the plates a most probable speed apart,
+/// 20 molecules per cell of λ/2 with two subcells of λ/4, Δt = 0.2 λ/c̄; μ from the plates'
+/// shear stress within 3 % of Bird 1994 eq. 4.62. What else moves μ/μ_CE here, each below 1 %:
+/// - cell size, +0.7 % at Δx = λ/4 (hard-sphere value of Alexander, Garcia & Alder 1998; from
+///   memory);
+/// - time step, +0.3 % at c̄Δt = 0.2 λ: μ/μ0 = 1 + (16/75π)(c̄Δt/λ)² (Garcia & Wagner 2000,
+///   Phys. Fluids 12, 2621; Hadjiconstantinou 2000, Phys. Fluids 12, 2634; from memory);
+/// - the exact viscosity exceeds the first approximation (for inverse-power-law molecules the
+///   factor falls from 1.016 for hard spheres to 1 for Maxwell molecules, Chapman & Cowling
+///   1970; from memory);
+/// - non-Newtonian (Burnett and higher-order) terms: the core shear rate is about 0.03 p/μ.
+///   For Maxwell molecules the exact moment equation ∂Q_xyy/∂y + P_yy du/dy = −(p/μ)P_xy
+///   (Truesdell & Muncaster 1980), evaluated with sampled P_yy and Q_xyy, puts them below
+///   0.5 % at this Kn and U but at −2 % for Kn = 0.05 and −5 % for Kn = 0.1 (measured with a
+///   scratch version of this harness; at Kn = 0.1 the plates' stress gave 0.949 against 0.945
+///   from that equation, at Kn = 0.05 0.981 and 0.960 for two seeds against 0.979 and 0.982),
+///   which is why the check is made at Kn = 0.02.
+///
+/// The statistical error comes from the thermal fluctuations of the velocity profile
+/// (Hadjiconstantinou, Garcia, Bazant & He 2003, J. Comput. Phys. 187, 274): seeds 1–6 of this
+/// set-up gave 0.986–0.996 (mean 0.991), and U = v_mp/2 gave 0.973–1.010 over three seeds.
+///
 /// The test also pins down why the first version of this harness found 0.96: the kinetic
-/// stresses sampled before and after the collision stage differ by (p/μ)Δt of the stress, and
-/// their mean is the momentum flux the plates see (to within the collisional transfer).
+/// stresses sampled just before and just after the collision stage differ by (p/μ)Δt of the
+/// stress, and their mean is the stress on the plates to within the collisional transfer.
 #[test]
 fn couette_plate_shear_stress_gives_chapman_enskog_viscosity() {
     let r = run_couette(&Couette {
@@ -339,7 +349,7 @@ fn couette_plate_shear_stress_gives_chapman_enskog_viscosity() {
         cells_per_lambda: 2.0,
         dt_over_tau: 0.2,
         startup: 10_000,
-        sample: 170_000,
+        sample: 300_000,
         seed: 1,
     });
     report("VHS argon", &r);
@@ -374,12 +384,15 @@ fn couette_plate_shear_stress_gives_chapman_enskog_viscosity() {
 }
 
 /// Diagnostic, not a check (run with `cargo test --release couette_viscosity_diagnostic --
-/// --ignored --nocapture`, a few minutes): the set-up of the first version of this harness
-/// (VHS argon, Kn = 0.02, U = v_mp, 40 molecules per cell of λ/2, no subcells, Δt = 0.1 λ/c̄)
-/// for VHS argon, hard spheres and Maxwell molecules, printing every estimator. There the
-/// after-collision sample reads about 0.96–0.97 for VHS argon, ½(p/μ)Δt ≈ 3 % below the
-/// time-centred one, while the plates' stress, which includes the collisional transfer of the
-/// λ/2 cells (about +2 %), gives about 1.01–1.03 (seed-to-seed scatter about 1.5 %).
+/// --ignored --nocapture`, about 40 s): the set-up of the first version of this harness (Kn =
+/// 0.02, U = v_mp, 40 molecules per cell of λ/2, no subcells, Δt = 0.1 λ/c̄) for VHS argon, hard
+/// spheres and Maxwell molecules, printing every estimator. Seed 1 gives, as μ/μ_CE, after /
+/// before the collisions / from the plates: VHS argon 0.965 / 1.025 / 1.013, hard spheres
+/// 0.971 / 1.052 / 1.034, Maxwell molecules 0.976 / 1.025 / 1.015. The after-collision sample
+/// (the first version's estimator) is ½(p/μ)Δt = 3.0 %, 4.1 % and 2.5 % below the time-centred
+/// one; the plates' stress adds the collisional transfer of the λ/2 cells, about 2 % (the
+/// cell-size excess, Alexander, Garcia & Alder 1998), and for hard spheres the exact viscosity
+/// is 1.6 % above the first approximation (Chapman & Cowling 1970; from memory).
 #[test]
 #[ignore]
 fn couette_viscosity_diagnostic() {
@@ -388,48 +401,19 @@ fn couette_viscosity_diagnostic() {
         ("hard spheres", MolecularModel::HardSphere, None),
         ("Maxwell molecules", MolecularModel::Vhs, Some(1.0)),
     ] {
-        for seed in 1..=2 {
-            let r = run_couette(&Couette {
-                model,
-                omega,
-                kn: 0.02,
-                u_over_vmp: 1.0,
-                per_cell: 40,
-                subcells: 1,
-                cells_per_lambda: 2.0,
-                dt_over_tau: 0.1,
-                startup: 20_000,
-                sample: 100_000,
-                seed,
-            });
-            report(name, &r);
-        }
-    }
-}
-
-#[test]
-#[ignore]
-fn tmp_couette_seeds() {
-    let s0: u64 = std::env::var("S0").map(|s| s.parse().unwrap()).unwrap_or(1);
-    let n: usize = std::env::var("NS").map(|s| s.parse().unwrap()).unwrap_or(300_000);
-    let kn: f64 = std::env::var("KN").map(|s| s.parse().unwrap()).unwrap_or(0.02);
-    let u: f64 = std::env::var("UU").map(|s| s.parse().unwrap()).unwrap_or(1.0);
-    let om: Option<f64> = std::env::var("OM").ok().map(|s| s.parse().unwrap());
-    for seed in s0..s0 + 3 {
-        let t = std::time::Instant::now();
         let r = run_couette(&Couette {
-            model: MolecularModel::Vhs,
-            omega: om,
-            kn,
-            u_over_vmp: u,
-            per_cell: 20,
-            subcells: 2,
+            model,
+            omega,
+            kn: 0.02,
+            u_over_vmp: 1.0,
+            per_cell: 40,
+            subcells: 1,
             cells_per_lambda: 2.0,
-            dt_over_tau: 0.2,
-            startup: 10_000,
-            sample: n,
-            seed,
+            dt_over_tau: 0.1,
+            startup: 20_000,
+            sample: 150_000,
+            seed: 1,
         });
-        report(&format!("seed {seed} {:.1}s", t.elapsed().as_secs_f64()), &r);
+        report(name, &r);
     }
 }
