@@ -236,26 +236,57 @@ fn cmd_run(
             out.display()
         );
     }
+    // A live progress line on a terminal; plain periodic log lines otherwise (batch jobs).
+    let terminal = std::io::IsTerminal::is_terminal(&std::io::stderr());
+    let bar = (terminal && !quiet).then(|| {
+        let b = indicatif::ProgressBar::new_spinner();
+        b.set_style(
+            indicatif::ProgressStyle::with_template("{spinner} {elapsed_precise} {msg}")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_spinner()),
+        );
+        b
+    });
+    let every = Duration::from_secs(if bar.is_some() { 1 } else { 30 });
+    let target = c.solver.target_uncertainty;
     let (sim, outcome) = pool.install(|| {
         let mut sim = Simulation::new(plan);
-        let outcome = sim.run(Duration::from_secs(5), |s, e, t| {
+        let outcome = sim.run(every, |s, e, t| {
             if quiet {
                 return;
             }
-            let flow = match e {
-                Some(e) => format!("{:.5e} kg/s ± {:.2}%", e.mean, 100.0 * e.relative()),
-                None => "(start-up)".to_string(),
+            let (flow, left) = match e {
+                Some(e) => {
+                    // batch-means width shrinks like 1/sqrt(steps): steps still needed
+                    let done = s.step as f64 - s.steady_state_step() as f64;
+                    let more = done * ((e.relative() / target).powi(2) - 1.0).max(0.0);
+                    let rate = s.step as f64 / t.as_secs_f64().max(1e-9);
+                    (
+                        format!("{:.5e} kg/s ± {:.2} %", e.mean, 100.0 * e.relative()),
+                        format!("~{:.0} s to ±{:.2} %", more / rate, 100.0 * target),
+                    )
+                }
+                None => ("(start-up)".to_string(), String::new()),
             };
-            eprintln!(
-                "  t = {:>6.1} s  step {:>8}  molecules {:>9}  flow {}",
-                t.as_secs_f64(),
+            let line = format!(
+                "step {:>8}  molecules {:>9}  flow {}  {}",
                 s.step,
                 s.population(),
-                flow
+                flow,
+                left
             );
+            match &bar {
+                Some(b) => {
+                    b.set_message(line);
+                    b.tick();
+                }
+                None => eprintln!("  t = {:>7.1} s  {line}", t.as_secs_f64()),
+            }
         });
         (sim, outcome)
     });
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
     let summary = Summary::new(&sim, &outcome, nthreads);
     output::write_json(&out.join("summary.json"), &summary)?;
     print_result(&summary);
