@@ -101,6 +101,8 @@ pub struct SolverSpec {
     pub molecules_per_cell: Option<u64>,
     /// Rotational relaxation: constant collision number, or Parker's temperature-dependent form.
     pub rotational_relaxation: crate::collide::RotationalRelaxation,
+    /// Wall time between checkpoints, s.
+    pub checkpoint_interval: f64,
 }
 
 /// A resolved case: every value in SI, checked.
@@ -578,6 +580,7 @@ fn resolve(root: &Table, file: &str) -> Result<Case> {
                 "molecules",
                 "molecules_per_cell",
                 "rotational_collision_number",
+                "checkpoint_interval",
             ],
         )?;
         let target = s
@@ -655,6 +658,18 @@ fn resolve(root: &Table, file: &str) -> Result<Case> {
             molecules,
             molecules_per_cell: per_cell,
             rotational_relaxation,
+            checkpoint_interval: {
+                let every = s
+                    .quantity("checkpoint_interval", Dimension::Time)?
+                    .unwrap_or(600.0);
+                if every < 1.0 {
+                    return Err(s.reject(
+                        "checkpoint_interval",
+                        "a time of at least 1 s, e.g. \"10 min\"",
+                    ));
+                }
+                every
+            },
         }
     };
 

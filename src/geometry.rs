@@ -9,7 +9,7 @@
 //! that is the `mover`'s job. Invariant: a valid flight segment never enters the solid.
 
 /// Flight state of one molecule in its local frame: position (r, 0, z), velocity (v_r, v_θ, v_z).
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Flight {
     pub z: f64,
     pub r: f64,

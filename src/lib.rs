@@ -14,6 +14,7 @@
 pub mod analytic;
 pub mod bench;
 pub mod case;
+pub mod checkpoint;
 pub mod collide;
 pub mod constants;
 pub mod error;

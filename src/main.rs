@@ -41,6 +41,10 @@ enum Command {
         /// Print only the final result.
         #[arg(long)]
         quiet: bool,
+        /// Continue the run saved in this directory (its checkpoint.bin); statistics include
+        /// every sample before and after. Only solver budgets may be changed with --set.
+        #[arg(long, value_name = "DIR")]
+        resume: Option<PathBuf>,
     },
     /// Validate a case and print the derived regime and numerics without running.
     Check {
@@ -74,10 +78,14 @@ enum Command {
     },
 }
 
+/// Exit code of a run stopped by SIGINT/SIGTERM after saving its checkpoint (EX_TEMPFAIL of
+/// sysexits.h: "try again later", i.e. resume).
+const EXIT_INTERRUPTED: u8 = 75;
+
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match run(cli) {
-        Ok(()) => ExitCode::SUCCESS,
+        Ok(code) => code,
         Err(e) => {
             eprintln!("kinflux: error: {e}");
             match e.downcast_ref::<kinflux::Error>() {
@@ -88,16 +96,25 @@ fn main() -> ExitCode {
     }
 }
 
-fn run(cli: Cli) -> anyhow::Result<()> {
-    match cli.command {
-        Command::Run {
-            case,
-            out,
-            set,
-            threads,
-            force,
-            quiet,
-        } => cmd_run(&case, out, &set, threads, force, quiet),
+fn run(cli: Cli) -> anyhow::Result<ExitCode> {
+    if let Command::Run {
+        case,
+        out,
+        set,
+        threads,
+        force,
+        quiet,
+        resume,
+    } = cli.command
+    {
+        return cmd_run(&case, out, &set, threads, force, quiet, resume);
+    }
+    other(cli.command).map(|()| ExitCode::SUCCESS)
+}
+
+fn other(command: Command) -> anyhow::Result<()> {
+    match command {
+        Command::Run { .. } => unreachable!("handled by run"),
         Command::Check { case, set } => {
             let c = case::load(&case, &set)?;
             let plan = Plan::new(&c)?;
@@ -196,6 +213,7 @@ fn run(cli: Cli) -> anyhow::Result<()> {
     }
 }
 
+#[allow(clippy::too_many_arguments)]
 fn cmd_run(
     case_path: &Path,
     out: Option<PathBuf>,
@@ -203,10 +221,51 @@ fn cmd_run(
     threads: Option<usize>,
     force: bool,
     quiet: bool,
-) -> anyhow::Result<()> {
-    let c = case::load(case_path, set)?;
+    resume: Option<PathBuf>,
+) -> anyhow::Result<ExitCode> {
+    let file = case_path.display().to_string();
+    // On resume the case is the checkpoint's own copy; only solver budgets may change.
+    let (case_text, mut overrides, saved) = match &resume {
+        None => {
+            let text = std::fs::read_to_string(case_path).map_err(|e| {
+                kinflux::Error::Input(format!("{file}: cannot read the case file: {e}"))
+            })?;
+            (text, set.to_vec(), None)
+        }
+        Some(dir) => {
+            let l = kinflux::checkpoint::load(dir)?;
+            let given = std::fs::read_to_string(case_path).unwrap_or_default();
+            if given != l.case_text {
+                return Err(kinflux::Error::Input(format!(
+                    "{file}: differs from the case saved in {}; expected the same case file to resume (edit budgets with --set solver.max_wall_time=... instead)",
+                    dir.display()
+                ))
+                .into());
+            }
+            for s in set {
+                let key = s.split('=').next().unwrap_or("").trim();
+                if !matches!(
+                    key,
+                    "solver.max_wall_time"
+                        | "solver.max_steps"
+                        | "solver.target_uncertainty"
+                        | "solver.checkpoint_interval"
+                ) {
+                    return Err(kinflux::Error::Input(format!(
+                        "--set {s}: expected only solver.max_wall_time, solver.max_steps, solver.target_uncertainty or solver.checkpoint_interval when resuming (other keys would change the physics)"
+                    ))
+                    .into());
+                }
+            }
+            (l.case_text, l.overrides, Some(l.state))
+        }
+    };
+    if saved.is_some() {
+        overrides.extend(set.iter().cloned());
+    }
+    let c = case::parse(&case_text, &file, &overrides)?;
     let plan = Plan::new(&c)?;
-    let out = out.unwrap_or_else(|| {
+    let out = resume.clone().or(out).unwrap_or_else(|| {
         let stem = case_path
             .file_stem()
             .map(|s| s.to_string_lossy().into_owned())
@@ -216,7 +275,15 @@ fn cmd_run(
     if threads == Some(0) {
         return Err(kinflux::Error::Input("--threads 0: expected at least 1 thread".into()).into());
     }
-    output::prepare_run_dir(&out, force)?;
+    if resume.is_none() {
+        output::prepare_run_dir(&out, force)?;
+    }
+    // SIGINT/SIGTERM (Slurm preemption): finish the step, save, exit with EXIT_INTERRUPTED.
+    let interrupted = std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false));
+    {
+        let flag = interrupted.clone();
+        let _ = ctrlc::set_handler(move || flag.store(true, std::sync::atomic::Ordering::SeqCst));
+    }
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads.unwrap_or(0))
         .build()?;
@@ -248,8 +315,26 @@ fn cmd_run(
     });
     let every = Duration::from_secs(if bar.is_some() { 1 } else { 30 });
     let target = c.solver.target_uncertainty;
-    let (sim, outcome) = pool.install(|| {
-        let mut sim = Simulation::new(plan);
+    let (mut sim, outcome) = pool.install(|| {
+        let mut sim = match saved {
+            Some(state) => Simulation::resume(plan, state),
+            None => Simulation::new(plan),
+        };
+        sim.interrupt = Some(interrupted.clone());
+        let (dir, text, name, ovr) = (
+            out.clone(),
+            case_text.clone(),
+            file.clone(),
+            overrides.clone(),
+        );
+        sim.checkpoint_hook = Some((
+            Duration::from_secs_f64(c.solver.checkpoint_interval),
+            Box::new(move |s: &Simulation| {
+                if let Err(e) = kinflux::checkpoint::save(&dir, s, &text, &name, &ovr) {
+                    eprintln!("kinflux: warning: checkpoint not written: {e}");
+                }
+            }),
+        ));
         let outcome = sim.run(every, |s, e, t| {
             if quiet {
                 return;
@@ -287,6 +372,9 @@ fn cmd_run(
     if let Some(b) = bar {
         b.finish_and_clear();
     }
+    // The final state is always saved, so a finished run can also be extended (--resume).
+    sim.checkpoint_hook = None;
+    kinflux::checkpoint::save(&out, &sim, &case_text, &file, &overrides)?;
     let summary = Summary::new(&sim, &outcome, nthreads);
     output::write_json(&out.join("summary.json"), &summary)?;
     print_result(&summary);
@@ -322,7 +410,17 @@ fn cmd_run(
         }
         Err(e) => eprintln!("kinflux: warning: field files not written: {e}"),
     }
-    Ok(())
+    if outcome.stop == kinflux::monitor::StopReason::Interrupted {
+        eprintln!(
+            "kinflux: interrupted at step {}; state saved in {}. Continue with: kinflux run {} --resume {}",
+            sim.step,
+            out.join(kinflux::checkpoint::FILE).display(),
+            case_path.display(),
+            out.display()
+        );
+        return Ok(ExitCode::from(EXIT_INTERRUPTED));
+    }
+    Ok(ExitCode::SUCCESS)
 }
 
 fn print_estimate(plan: &Plan) {

@@ -20,7 +20,7 @@ use crate::particles::Molecules;
 use serde::{Deserialize, Serialize};
 
 /// Number of per-cell accumulators besides the species counts.
-const MOMENTS: usize = 9;
+pub const MOMENTS: usize = 9;
 /// Indices of the moments.
 const M_MASS: usize = 0;
 const M_PZ: usize = 1;

@@ -27,7 +27,7 @@ use std::time::{Duration, Instant};
 pub const CELL_BLOCK: usize = 64;
 
 /// A clone waiting for release (see `weights`).
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct PendingClone {
     pub flight: Flight,
     pub erot: f64,
@@ -37,7 +37,7 @@ pub struct PendingClone {
 }
 
 /// Particle bookkeeping since the start of the run (simulated molecules).
-#[derive(Debug, Clone, Copy, Default, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, Copy, Default, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Balance {
     pub initial: u64,
     pub injected: u64,
@@ -113,6 +113,28 @@ fn timed<T>(acc: &mut f64, f: impl FnOnce() -> T) -> T {
     out
 }
 
+/// Periodic checkpoint: interval and the function that saves one.
+pub type CheckpointHook = (Duration, Box<dyn FnMut(&Simulation) + Send>);
+
+/// The state a checkpoint saves: everything that evolves, nothing derived from the case.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct SavedState {
+    pub step: u64,
+    pub balance: Balance,
+    pub particle_steps: u64,
+    pub collision_stats: CollisionStats,
+    pub sampled_cell_molecules: u64,
+    pub sampled_upstream_molecules: u64,
+    pub flux: FluxHistory,
+    pub pending: Vec<PendingClone>,
+    #[serde(skip)]
+    pub molecules: Molecules,
+    #[serde(skip)]
+    pub sigma_cr_max: Vec<f64>,
+    #[serde(skip)]
+    pub fields: FieldSampler,
+}
+
 /// A simulation in progress.
 pub struct Simulation {
     pub plan: Plan,
@@ -138,6 +160,10 @@ pub struct Simulation {
     pub times: StageTimes,
     /// Per-cell samples accumulated after start-up.
     pub fields: FieldSampler,
+    /// Set (by a signal handler) to stop the run at the end of the current step.
+    pub interrupt: Option<std::sync::Arc<std::sync::atomic::AtomicBool>>,
+    /// Called about every `.0` of wall time with the simulation, to save a checkpoint.
+    pub checkpoint_hook: Option<CheckpointHook>,
     sort: SortScratch,
 }
 
@@ -176,8 +202,46 @@ impl Simulation {
             cell_offsets: Vec::new(),
             times: StageTimes::default(),
             fields,
+            interrupt: None,
+            checkpoint_hook: None,
             sort: SortScratch::default(),
         }
+    }
+
+    /// The evolving state, for a checkpoint.
+    pub fn saved_state(&self) -> SavedState {
+        SavedState {
+            step: self.step,
+            balance: self.balance,
+            particle_steps: self.particle_steps,
+            collision_stats: self.collision_stats,
+            sampled_cell_molecules: self.sampled_cell_molecules,
+            sampled_upstream_molecules: self.sampled_upstream_molecules,
+            flux: self.flux.clone(),
+            pending: self.pending.clone(),
+            molecules: self.molecules.clone(),
+            sigma_cr_max: self.sigma_cr_max.clone(),
+            fields: self.fields.clone(),
+        }
+    }
+
+    /// Continue a simulation from a saved state (the plan must come from the same case).
+    /// Random streams are keyed by the step number, so the continuation is bit-identical to
+    /// an uninterrupted run.
+    pub fn resume(plan: Plan, s: SavedState) -> Simulation {
+        let mut sim = Simulation::new(plan);
+        sim.step = s.step;
+        sim.balance = s.balance;
+        sim.particle_steps = s.particle_steps;
+        sim.collision_stats = s.collision_stats;
+        sim.sampled_cell_molecules = s.sampled_cell_molecules;
+        sim.sampled_upstream_molecules = s.sampled_upstream_molecules;
+        sim.flux = s.flux;
+        sim.pending = s.pending;
+        sim.molecules = s.molecules;
+        sim.sigma_cr_max = s.sigma_cr_max;
+        sim.fields = s.fields;
+        sim
     }
 
     /// Advance by one time step.
@@ -578,12 +642,15 @@ impl Simulation {
         let started = Instant::now();
         let mut last_report = Instant::now();
         let check_every = 16;
+        let mut last_checkpoint = Instant::now();
         let stop = loop {
             self.step();
             let elapsed = started.elapsed();
             let sampling = self.step.saturating_sub(self.plan.startup_steps);
             let mut estimate = None;
-            if self.step.is_multiple_of(check_every) || last_report.elapsed() >= report_every {
+            // The stopping test runs on fixed steps only, so where a run stops does not depend
+            // on wall time (a resumed run stops where an uninterrupted one would).
+            if self.step.is_multiple_of(check_every) {
                 estimate = self.mass_flow_estimate();
                 // Trust the interval only after enough sampling steps (≥ 20 per batch), so the
                 // stop is not triggered by an early lucky batch spread.
@@ -594,8 +661,22 @@ impl Simulation {
                 }
             }
             if last_report.elapsed() >= report_every {
-                report(self, estimate, elapsed);
+                let e = estimate.or_else(|| self.mass_flow_estimate());
+                report(self, e, elapsed);
                 last_report = Instant::now();
+            }
+            let due = matches!(&self.checkpoint_hook, Some((every, _)) if last_checkpoint.elapsed() >= *every);
+            if due {
+                if let Some((every, mut save)) = self.checkpoint_hook.take() {
+                    save(self);
+                    self.checkpoint_hook = Some((every, save));
+                }
+                last_checkpoint = Instant::now();
+            }
+            if let Some(flag) = &self.interrupt {
+                if flag.load(std::sync::atomic::Ordering::SeqCst) {
+                    break StopReason::Interrupted;
+                }
             }
             if matches!(solver.max_steps, Some(n) if self.step >= n) {
                 break StopReason::MaxSteps;

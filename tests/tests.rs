@@ -5,6 +5,7 @@ mod util;
 
 mod analytic;
 mod case_errors;
+mod checkpoint;
 mod collisions;
 mod couette;
 mod fields;
