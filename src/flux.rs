@@ -7,6 +7,12 @@
 //! the per-step series (for the batch-means interval) and converts counts to flow rates.
 //! Invariant: `steps` equals the length of every per-step series.
 
+/// Radial bins of the aperture mass-flux profile (equal widths in r/a).
+pub const RADIAL_BINS: usize = 20;
+/// Polar-angle bins (equal widths of 5° from the axis) of the angular distribution of the
+/// molecules leaving the aperture downstream.
+pub const POLAR_BINS: usize = 18;
+
 /// Crossing counts of one step or one chunk, per species.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Crossings {
@@ -14,6 +20,10 @@ pub struct Crossings {
     pub net: Vec<f64>,
     /// Number of crossing events (either direction), for diagnostics.
     pub events: u64,
+    /// Net weighted mass crossing per radial bin (kg per F_N).
+    pub radial: [f64; RADIAL_BINS],
+    /// Weighted molecules leaving downstream per polar-angle bin (per F_N).
+    pub polar: [f64; POLAR_BINS],
 }
 
 impl Crossings {
@@ -22,14 +32,31 @@ impl Crossings {
         Crossings {
             net: vec![0.0; species],
             events: 0,
+            radial: [0.0; RADIAL_BINS],
+            polar: [0.0; POLAR_BINS],
         }
     }
 
     /// Record one crossing.
     #[inline]
-    pub fn add(&mut self, species: usize, sign: f64, weight: f64) {
+    pub fn add(
+        &mut self,
+        species: usize,
+        sign: f64,
+        weight: f64,
+        mass: f64,
+        r_over_a: f64,
+        cos_theta: f64,
+    ) {
         self.net[species] += sign * weight;
         self.events += 1;
+        let rb = ((r_over_a * RADIAL_BINS as f64) as usize).min(RADIAL_BINS - 1);
+        self.radial[rb] += sign * weight * mass;
+        if sign > 0.0 {
+            let theta = cos_theta.clamp(0.0, 1.0).acos().to_degrees();
+            let pb = ((theta / 5.0) as usize).min(POLAR_BINS - 1);
+            self.polar[pb] += weight;
+        }
     }
 
     /// Add another tally (used in chunk order, so sums are reproducible).
@@ -38,6 +65,12 @@ impl Crossings {
             *a += *b;
         }
         self.events += other.events;
+        for (a, b) in self.radial.iter_mut().zip(&other.radial) {
+            *a += *b;
+        }
+        for (a, b) in self.polar.iter_mut().zip(&other.polar) {
+            *a += *b;
+        }
     }
 }
 
@@ -50,6 +83,15 @@ pub struct FluxHistory {
     pub molecules_per_step: Vec<Vec<f64>>,
     /// Crossing events per step.
     pub events_per_step: Vec<u64>,
+    /// Radial mass-crossing profile summed over the sampling steps (kg per F_N).
+    #[serde(default)]
+    pub radial_sum: Vec<f64>,
+    /// Polar-angle counts of molecules leaving downstream over the sampling steps (per F_N).
+    #[serde(default)]
+    pub polar_sum: Vec<f64>,
+    /// Steps summed into the profiles.
+    #[serde(default)]
+    pub profile_steps: u64,
 }
 
 impl FluxHistory {
@@ -59,6 +101,9 @@ impl FluxHistory {
             mass_per_step: Vec::new(),
             molecules_per_step: vec![Vec::new(); species],
             events_per_step: Vec::new(),
+            radial_sum: vec![0.0; RADIAL_BINS],
+            polar_sum: vec![0.0; POLAR_BINS],
+            profile_steps: 0,
         }
     }
 
@@ -72,6 +117,17 @@ impl FluxHistory {
         }
         self.mass_per_step.push(mass);
         self.events_per_step.push(c.events);
+    }
+
+    /// Add one sampling step's crossings to the aperture profiles.
+    pub fn record_profiles(&mut self, c: &Crossings) {
+        for (a, b) in self.radial_sum.iter_mut().zip(&c.radial) {
+            *a += *b;
+        }
+        for (a, b) in self.polar_sum.iter_mut().zip(&c.polar) {
+            *a += *b;
+        }
+        self.profile_steps += 1;
     }
 
     /// Number of recorded steps.

@@ -37,13 +37,14 @@ pub struct WallReflection {
 pub const MAX_HITS_PER_STEP: usize = 10_000;
 
 /// Fly `m` for time `dt`. `last` is the surface the molecule starts on (an injection boundary),
-/// `z_count` the measurement plane; `on_cross(sign, r)` is called for each crossing of that
-/// plane (sign +1 in the +z direction, −1 against), with the crossing radius. `diffused` is set
+/// `z_count` the measurement plane; `on_cross(sign, r, cos θ)` is called for each crossing of
+/// that plane (sign +1 in the +z direction, −1 against), with the crossing radius and the cosine
+/// of the angle between the velocity and the axis. `diffused` is set
 /// when the molecule was re-emitted diffusely by a wall (its internal energy must then be
 /// resampled at the wall temperature by the caller; specular hits keep it).
 #[allow(clippy::too_many_arguments)]
 #[inline]
-pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64)>(
+pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
     geom: &Axisymmetric,
     wall: &WallReflection,
     m: &mut Flight,
@@ -87,7 +88,8 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64)>(
             let s = (z_count - z0) / m.vz;
             let x = m.r + m.vr * s;
             let y = m.vt * s;
-            on_cross(m.vz.signum(), (x * x + y * y).sqrt());
+            let speed = (m.vz * m.vz + m.vr * m.vr + m.vt * m.vt).sqrt();
+            on_cross(m.vz.signum(), (x * x + y * y).sqrt(), m.vz.abs() / speed);
         }
         match hit {
             None => {

@@ -262,6 +262,9 @@ impl Simulation {
             self.flux.record(&crossings, fnum, masses)
         });
         if self.sampling() {
+            self.flux.record_profiles(&crossings);
+        }
+        if self.sampling() {
             let (plan, m, f) = (&self.plan, &self.molecules, &mut self.fields);
             timed(&mut t.sample_s, || {
                 f.sample(plan, m, |i| plan.grid.cell(m.z[i], m.r[i]))
@@ -753,6 +756,7 @@ fn fly_one<R: Rng>(
     let band0 = w.band(f.r);
     let weight = w.factor[band0];
     let crossings = &mut rep.crossings;
+    let (mass, inv_a) = (plan.masses[s], 1.0 / plan.geometry.radius);
     let mut diffused = false;
     let fate = advance(
         &plan.geometry,
@@ -762,7 +766,7 @@ fn fly_one<R: Rng>(
         last,
         plan.z_count,
         rng,
-        &mut |sign, _r| crossings.add(s, sign, weight),
+        &mut |sign, r, cos| crossings.add(s, sign, weight, mass, r * inv_a, cos),
         &mut diffused,
     );
     match fate {

@@ -123,6 +123,29 @@ pub struct QualityReport {
     pub warnings: Vec<String>,
 }
 
+/// Radial profile of the mass flux through the aperture (measurement plane).
+#[derive(Debug, Clone, Serialize)]
+pub struct ApertureProfile {
+    /// Bin centres in r/a.
+    pub r_over_a: Vec<f64>,
+    /// Net mass flux per unit area in each annulus, kg/(m² s).
+    pub mass_flux_kg_m2_s: Vec<f64>,
+    /// The same over the mean flux Ṁ/(π a²).
+    pub relative_to_mean: Vec<f64>,
+}
+
+/// Angular distribution of the molecules leaving the aperture downstream.
+#[derive(Debug, Clone, Serialize)]
+pub struct AngularDistribution {
+    /// Polar-angle bin centres from the axis, degrees (bins of 5°).
+    pub theta_deg: Vec<f64>,
+    /// Fraction of the downstream-leaving molecules in each bin over the cosine-law fraction
+    /// sin²θ_hi − sin²θ_lo (1 everywhere for Knudsen's cosine law of effusion).
+    pub flux_per_solid_angle_over_cosine_law: Vec<f64>,
+    /// Molecules (real) leaving downstream per second, the normalisation.
+    pub molecules_per_s: f64,
+}
+
 /// Everything written to summary.json.
 #[derive(Debug, Clone, Serialize)]
 pub struct Summary {
@@ -136,6 +159,8 @@ pub struct Summary {
     pub reference: References,
     pub numerics: Choices,
     pub quality: QualityReport,
+    pub aperture: ApertureProfile,
+    pub plume: AngularDistribution,
     pub run: RunSummary,
     pub caution: &'static str,
 }
@@ -212,6 +237,7 @@ impl Summary {
         };
         let wall = outcome.wall_time.as_secs_f64();
         let quality = quality_report(sim, sampled as u64);
+        let (aperture, plume) = profiles(sim, mdot);
         Summary {
             kinflux_version: env!("CARGO_PKG_VERSION"),
             title: case.title.clone(),
@@ -253,6 +279,8 @@ impl Summary {
             },
             numerics: plan.choices.clone(),
             quality,
+            aperture,
+            plume,
             run: RunSummary {
                 steps: sim.step,
                 startup_steps: plan.startup_steps,
@@ -333,4 +361,54 @@ pub fn quality_report(sim: &Simulation, sampling_steps: u64) -> QualityReport {
         mean_molecules_per_upstream_cell: mean_up,
         warnings,
     }
+}
+
+/// Aperture radial profile and angular distribution from the sampled crossings.
+fn profiles(sim: &Simulation, mdot: f64) -> (ApertureProfile, AngularDistribution) {
+    use crate::flux::{POLAR_BINS, RADIAL_BINS};
+    let plan = &sim.plan;
+    let f = &sim.flux;
+    let a = plan.geometry.radius;
+    let time = f.profile_steps.max(1) as f64 * plan.dt;
+    let mean = mdot / (std::f64::consts::PI * a * a);
+    let mut r_over_a = Vec::with_capacity(RADIAL_BINS);
+    let mut flux = Vec::with_capacity(RADIAL_BINS);
+    for (k, m) in f.radial_sum.iter().enumerate() {
+        let (lo, hi) = (
+            k as f64 / RADIAL_BINS as f64,
+            (k + 1) as f64 / RADIAL_BINS as f64,
+        );
+        r_over_a.push(0.5 * (lo + hi));
+        let area = std::f64::consts::PI * a * a * (hi * hi - lo * lo);
+        flux.push(m * plan.fnum / (time * area));
+    }
+    let relative = flux.iter().map(|x| x / mean).collect();
+    let total: f64 = f.polar_sum.iter().sum();
+    let mut theta = Vec::with_capacity(POLAR_BINS);
+    let mut ratio = Vec::with_capacity(POLAR_BINS);
+    for (k, n) in f.polar_sum.iter().enumerate() {
+        let (lo, hi) = (
+            (5.0 * k as f64).to_radians(),
+            (5.0 * (k + 1) as f64).to_radians(),
+        );
+        theta.push(5.0 * k as f64 + 2.5);
+        let cosine_law = hi.sin().powi(2) - lo.sin().powi(2);
+        ratio.push(if total > 0.0 {
+            n / total / cosine_law
+        } else {
+            f64::NAN
+        });
+    }
+    (
+        ApertureProfile {
+            r_over_a,
+            mass_flux_kg_m2_s: flux,
+            relative_to_mean: relative,
+        },
+        AngularDistribution {
+            theta_deg: theta,
+            flux_per_solid_angle_over_cosine_law: ratio,
+            molecules_per_s: total * plan.fnum / time,
+        },
+    )
 }

@@ -29,6 +29,23 @@ fn thin_orifice_into_vacuum_gives_knudsen_effusion() {
         (w - 1.0).abs() < 2.0 * s.flow.reduced_flow_rate_ci95 + 1e-3,
         "W = {w}"
     );
+    // Knudsen's cosine law of effusion: molecules leave a thin orifice with dN/dΩ ∝ cos θ, so
+    // every 5° bin holds its cosine-law share (within 5 %; the bins hold ≥ 10⁴ molecules).
+    for (theta, r) in s
+        .plume
+        .theta_deg
+        .iter()
+        .zip(&s.plume.flux_per_solid_angle_over_cosine_law)
+    {
+        assert!(
+            (r - 1.0).abs() < 0.05,
+            "θ = {theta}°: {r} of the cosine law"
+        );
+    }
+    // and the effusion flux is uniform over the hole (the upstream gas at rest is uniform)
+    for (x, f) in s.aperture.r_over_a.iter().zip(&s.aperture.relative_to_mean) {
+        assert!((f - 1.0).abs() < 0.05, "r/a = {x}: flux {f} of the mean");
+    }
 }
 
 /// Equal temperatures, p2/p1 = 0.5: the back-flow through the hole halves the net flow,

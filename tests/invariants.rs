@@ -20,7 +20,17 @@ fn advance_checked<F: FnMut(f64, f64)>(
     on_cross: &mut F,
 ) -> Fate {
     let mut diffused = false;
-    advance(geom, wall, f, dt, last, plane, rng, on_cross, &mut diffused)
+    advance(
+        geom,
+        wall,
+        f,
+        dt,
+        last,
+        plane,
+        rng,
+        &mut |s, r, _cos| on_cross(s, r),
+        &mut diffused,
+    )
 }
 use kinflux::numerics::Plan;
 use kinflux::simulation::Simulation;
