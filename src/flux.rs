@@ -92,6 +92,9 @@ pub struct FluxHistory {
     /// Steps summed into the profiles.
     #[serde(default)]
     pub profile_steps: u64,
+    /// Simulated molecules in the domain at the end of each step.
+    #[serde(default)]
+    pub population_per_step: Vec<u64>,
 }
 
 impl FluxHistory {
@@ -104,6 +107,7 @@ impl FluxHistory {
             radial_sum: vec![0.0; RADIAL_BINS],
             polar_sum: vec![0.0; POLAR_BINS],
             profile_steps: 0,
+            population_per_step: Vec::new(),
         }
     }
 

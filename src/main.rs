@@ -377,8 +377,13 @@ fn cmd_run(
     kinflux::checkpoint::save(&out, &sim, &case_text, &file, &overrides)?;
     let summary = Summary::new(&sim, &outcome, nthreads);
     output::write_json(&out.join("summary.json"), &summary)?;
+    output::write_atomic(
+        &out.join("history.csv"),
+        output::history_csv(&sim).as_bytes(),
+    )?;
     print_result(&summary);
     println!("wrote {}", out.join("summary.json").display());
+    println!("wrote {}", out.join("history.csv").display());
     let c = &sim.plan.case;
     let meta = [
         ("title", c.title.clone()),

@@ -79,3 +79,39 @@ pub fn write_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<()> {
     text.push('\n');
     write_atomic(path, text.as_bytes())
 }
+
+/// The run history as CSV: one row per step with the step's net mass flow, and every 16 steps
+/// after the steady-state start the running mean and 95 % half-width (batch means), so the
+/// convergence of the estimate can be plotted.
+pub fn history_csv(sim: &crate::simulation::Simulation) -> String {
+    let f = &sim.flux;
+    let dt = sim.plan.dt;
+    let start = sim.steady_state_step();
+    let mut out =
+        String::from("step,time_s,molecules,mass_flow_kg_s,running_mean_kg_s,running_ci95_kg_s\n");
+    for k in 0..f.steps() {
+        let step = k + 1;
+        let (mean, ci) = if step > start && step % 16 == 0 {
+            match crate::monitor::batch_means(&f.mass_per_step[start..step]) {
+                Some(e) => (
+                    format!("{:e}", e.mean / dt),
+                    format!("{:e}", e.half_width / dt),
+                ),
+                None => (String::new(), String::new()),
+            }
+        } else {
+            (String::new(), String::new())
+        };
+        let molecules = f
+            .population_per_step
+            .get(k)
+            .map(|m| m.to_string())
+            .unwrap_or_default();
+        out.push_str(&format!(
+            "{step},{:e},{molecules},{:e},{mean},{ci}\n",
+            step as f64 * dt,
+            f.mass_per_step[k] / dt
+        ));
+    }
+    out
+}

@@ -264,6 +264,9 @@ impl Simulation {
         if self.sampling() {
             self.flux.record_profiles(&crossings);
         }
+        self.flux
+            .population_per_step
+            .push(self.molecules.len() as u64);
         if self.sampling() {
             let (plan, m, f) = (&self.plan, &self.molecules, &mut self.fields);
             timed(&mut t.sample_s, || {

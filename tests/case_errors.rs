@@ -253,6 +253,14 @@ fn overrides_change_the_case_and_earlier_results_are_kept() {
         assert!(summary["flow"].get(key).is_some(), "flow.{key} missing");
     }
     assert!(summary["flow"]["species"][0]["name"] == "Ar");
+    // history.csv: a header and one row per step
+    let history = std::fs::read_to_string(dir.path().join("res/history.csv")).unwrap();
+    assert!(history
+        .starts_with("step,time_s,molecules,mass_flow_kg_s,running_mean_kg_s,running_ci95_kg_s"));
+    assert_eq!(
+        history.lines().count() as u64,
+        1 + summary["run"]["steps"].as_u64().unwrap()
+    );
     assert!(summary["regime"]["rarefaction_parameter"].is_number());
     assert!(summary["regime"]["knudsen_number"].is_number());
     for key in ["steps", "wall_time_s", "particle_steps_per_s"] {
