@@ -29,6 +29,7 @@ pub mod mover;
 pub mod numerics;
 pub mod output;
 pub mod particles;
+pub mod plots;
 pub mod reservoir;
 pub mod sample;
 pub mod simulation;

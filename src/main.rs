@@ -415,6 +415,14 @@ fn cmd_run(
         }
         Err(e) => eprintln!("kinflux: warning: field files not written: {e}"),
     }
+    match kinflux::plots::write_all(&out, &sim, &fields) {
+        Ok(files) => {
+            for f in files {
+                println!("wrote {}", f.display());
+            }
+        }
+        Err(e) => eprintln!("kinflux: warning: charts not written: {e}"),
+    }
     if outcome.stop == kinflux::monitor::StopReason::Interrupted {
         eprintln!(
             "kinflux: interrupted at step {}; state saved in {}. Continue with: kinflux run {} --resume {}",

@@ -146,6 +146,21 @@ fn field_files_are_readable_by_an_independent_reader() {
             "missing file attribute {attr}"
         );
     }
+    // the charts: SVG with labelled axes
+    for (file, label) in [
+        ("convergence.svg", "mass flow rate (kg/s)"),
+        ("number_density.svg", "z / a"),
+        ("mach_number.svg", "r / a"),
+        ("temperature.svg", "K"),
+    ] {
+        let svg = std::fs::read_to_string(dir.path().join("res").join(file))
+            .unwrap_or_else(|_| panic!("{file} missing"));
+        assert!(
+            svg.contains("<svg") && svg.trim_end().ends_with("</svg>"),
+            "{file} is not a complete SVG"
+        );
+        assert!(svg.contains(label), "{file} lacks the label {label}");
+    }
     // XDMF: balanced elements, and every referenced dataset exists in the HDF5 file
     assert!(xdmf.starts_with("<?xml"));
     for tag in [

@@ -1,0 +1,249 @@
+//! Charts of a run as SVG: the convergence history of the flow rate with its 95 % band, and
+//! colour maps of number density, Mach number and temperature over the (z, r) half-plane with
+//! the partition drawn. Axes are labelled with units. SVG is an open standard that browsers and
+//! reports show directly. Invariant: files are written atomically; a chart that cannot be drawn
+//! is reported, never left half-written.
+
+use crate::error::{Error, Result};
+use crate::numerics::Plan;
+use crate::sample::Fields;
+use crate::simulation::Simulation;
+use plotters::prelude::*;
+use std::path::{Path, PathBuf};
+
+fn fail(path: &Path, e: impl std::fmt::Display) -> Error {
+    Error::io(path, std::io::Error::other(e.to_string()))
+}
+
+/// Convergence history: per-16-step running mean of the mass flow with its 95 % band.
+pub fn convergence(path: &Path, sim: &Simulation) -> Result<()> {
+    let f = &sim.flux;
+    let dt = sim.plan.dt;
+    let start = sim.steady_state_step();
+    let mut pts = Vec::new();
+    let mut k = start + 64;
+    while k <= f.steps() {
+        if let Some(e) = crate::monitor::batch_means(&f.mass_per_step[start..k]) {
+            pts.push((k as f64, e.mean / dt, e.half_width / dt));
+        }
+        k += 16.max((f.steps() - start) / 400);
+    }
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (900, 560)).into_drawing_area();
+        root.fill(&WHITE).map_err(|e| fail(path, e))?;
+        let (x0, x1) = (start as f64, f.steps().max(start + 1) as f64);
+        let (mut y0, mut y1) = (f64::INFINITY, f64::NEG_INFINITY);
+        for &(_, m, h) in &pts {
+            y0 = y0.min(m - h);
+            y1 = y1.max(m + h);
+        }
+        if !y0.is_finite() || y1 <= y0 {
+            let m = sim.mass_flow_estimate().map(|e| e.mean).unwrap_or(1.0);
+            y0 = 0.9 * m;
+            y1 = 1.1 * m;
+        }
+        let pad = 0.05 * (y1 - y0);
+        let mut c = ChartBuilder::on(&root)
+            .caption(
+                "Mass flow rate: running mean with 95 % interval (batch means)",
+                ("sans-serif", 22),
+            )
+            .margin(14)
+            .x_label_area_size(50)
+            .y_label_area_size(90)
+            .build_cartesian_2d(x0..x1, (y0 - pad)..(y1 + pad))
+            .map_err(|e| fail(path, e))?;
+        c.configure_mesh()
+            .x_desc(format!(
+                "step (time step {dt:.3e} s); statistics from the steady-state start, step {start}"
+            ))
+            .y_desc("mass flow rate (kg/s)")
+            .y_label_formatter(&|y| format!("{y:.4e}"))
+            .draw()
+            .map_err(|e| fail(path, e))?;
+        let band: Vec<(f64, f64)> = pts
+            .iter()
+            .map(|&(x, m, h)| (x, m + h))
+            .chain(pts.iter().rev().map(|&(x, m, h)| (x, m - h)))
+            .collect();
+        if band.len() > 2 {
+            c.draw_series(std::iter::once(Polygon::new(band, BLUE.mix(0.2))))
+                .map_err(|e| fail(path, e))?;
+        }
+        c.draw_series(LineSeries::new(
+            pts.iter().map(|&(x, m, _)| (x, m)),
+            BLUE.stroke_width(2),
+        ))
+        .map_err(|e| fail(path, e))?;
+        root.present().map_err(|e| fail(path, e))?;
+    }
+    crate::output::write_atomic(path, svg.as_bytes())
+}
+
+/// Viridis-like colour scale (anchor colours of the perceptually uniform "viridis" map of
+/// van der Walt & Smith, interpolated linearly).
+fn colour(t: f64) -> RGBColor {
+    const A: [(f64, f64, f64); 5] = [
+        (68.0, 1.0, 84.0),
+        (59.0, 82.0, 139.0),
+        (33.0, 145.0, 140.0),
+        (94.0, 201.0, 98.0),
+        (253.0, 231.0, 37.0),
+    ];
+    let t = if t.is_finite() {
+        t.clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
+    let x = t * 4.0;
+    let i = (x as usize).min(3);
+    let u = x - i as f64;
+    let (a, b) = (A[i], A[i + 1]);
+    let mix = |p: f64, q: f64| (p + (q - p) * u).round() as u8;
+    RGBColor(mix(a.0, b.0), mix(a.1, b.1), mix(a.2, b.2))
+}
+
+/// Colour map of one field over the (z, r) grid, with the partition and the axis drawn.
+pub fn field_map(
+    path: &Path,
+    plan: &Plan,
+    values: &[f64],
+    title: &str,
+    units: &str,
+    log: bool,
+) -> Result<()> {
+    let g = &plan.grid;
+    let (nz, nr) = (g.z.len(), g.r.len());
+    let a = plan.geometry.radius;
+    let tr = |v: f64| if log { v.log10() } else { v };
+    let finite: Vec<f64> = values
+        .iter()
+        .copied()
+        .filter(|v| v.is_finite() && (!log || *v > 0.0))
+        .map(tr)
+        .collect();
+    let (lo, hi) = finite
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), &v| {
+            (l.min(v), h.max(v))
+        });
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (1000, 520)).into_drawing_area();
+        root.fill(&WHITE).map_err(|e| fail(path, e))?;
+        let (main, bar) = root.split_horizontally(880);
+        let (z0, z1) = (plan.geometry.z_min / a, plan.geometry.z_max / a);
+        let r1 = plan.geometry.r_max / a;
+        let mut c = ChartBuilder::on(&main)
+            .caption(title, ("sans-serif", 20))
+            .margin(12)
+            .x_label_area_size(45)
+            .y_label_area_size(55)
+            .build_cartesian_2d(z0..z1, 0.0..r1)
+            .map_err(|e| fail(path, e))?;
+        c.configure_mesh()
+            .x_desc("z / a (axial, flow from left to right; a = aperture radius)")
+            .y_desc("r / a (radial)")
+            .disable_mesh()
+            .draw()
+            .map_err(|e| fail(path, e))?;
+        let mut cells = Vec::with_capacity(nz * nr);
+        for iz in 0..nz {
+            let (za, zb) = g.z.edges(iz);
+            for ir in 0..nr {
+                let v = values[iz * nr + ir];
+                if g.volume[iz * nr + ir] <= 0.0 || !v.is_finite() || (log && v <= 0.0) {
+                    continue;
+                }
+                let (ra, rb) = g.r.edges(ir);
+                let t = if hi > lo {
+                    (tr(v) - lo) / (hi - lo)
+                } else {
+                    0.5
+                };
+                cells.push(Rectangle::new(
+                    [(za / a, ra / a), (zb / a, rb / a)],
+                    colour(t).filled(),
+                ));
+            }
+        }
+        c.draw_series(cells).map_err(|e| fail(path, e))?;
+        // the partition (solid) and its faces
+        let t = plan.geometry.thickness / a;
+        c.draw_series(std::iter::once(Rectangle::new(
+            [(0.0, 1.0), (t.max(0.02), r1)],
+            BLACK.mix(0.75).filled(),
+        )))
+        .map_err(|e| fail(path, e))?;
+        // colour bar
+        let mut b = ChartBuilder::on(&bar)
+            .margin_top(40)
+            .margin_bottom(50)
+            .margin_right(10)
+            .y_label_area_size(60)
+            .build_cartesian_2d(0.0..1.0, lo.min(hi)..hi.max(lo + 1e-30))
+            .map_err(|e| fail(path, e))?;
+        b.configure_mesh()
+            .disable_x_axis()
+            .disable_mesh()
+            .y_desc(if log {
+                format!("log10({units})")
+            } else {
+                units.to_string()
+            })
+            .y_label_formatter(&|y| format!("{y:.3}"))
+            .draw()
+            .map_err(|e| fail(path, e))?;
+        let steps = 64;
+        b.draw_series((0..steps).map(|k| {
+            let (ya, yb) = (
+                lo + (hi - lo) * k as f64 / steps as f64,
+                lo + (hi - lo) * (k + 1) as f64 / steps as f64,
+            );
+            Rectangle::new(
+                [(0.0, ya), (1.0, yb)],
+                colour(k as f64 / (steps - 1) as f64).filled(),
+            )
+        }))
+        .map_err(|e| fail(path, e))?;
+        root.present().map_err(|e| fail(path, e))?;
+    }
+    crate::output::write_atomic(path, svg.as_bytes())
+}
+
+/// Every chart of a run into `dir`; returns the files written.
+pub fn write_all(dir: &Path, sim: &Simulation, fields: &Fields) -> Result<Vec<PathBuf>> {
+    let mut out = Vec::new();
+    let p = dir.join("convergence.svg");
+    convergence(&p, sim)?;
+    out.push(p);
+    for (file, values, title, units, log) in [
+        (
+            "number_density.svg",
+            &fields.number_density,
+            "Number density",
+            "1/m³",
+            true,
+        ),
+        (
+            "mach_number.svg",
+            &fields.mach_number,
+            "Mach number",
+            "Mach number (1)",
+            false,
+        ),
+        (
+            "temperature.svg",
+            &fields.temperature,
+            "Overall temperature",
+            "K",
+            false,
+        ),
+    ] {
+        let p = dir.join(file);
+        field_map(&p, &sim.plan, values, title, units, log)?;
+        out.push(p);
+    }
+    Ok(out)
+}
