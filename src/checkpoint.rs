@@ -90,6 +90,17 @@ pub fn save(
     crate::output::write_atomic(&path, &out)
 }
 
+/// `n` little-endian f64 values from `bytes` at `*at`, advancing it.
+fn f64s(bytes: &[u8], at: &mut usize, n: usize) -> Option<Vec<f64>> {
+    let raw = bytes.get(*at..*at + 8 * n)?;
+    *at += 8 * n;
+    Some(
+        raw.chunks_exact(8)
+            .map(|c| f64::from_le_bytes(c.try_into().expect("8 bytes")))
+            .collect(),
+    )
+}
+
 /// Read `dir/checkpoint.bin`.
 pub fn load(dir: &Path) -> Result<Loaded> {
     let path = dir.join(FILE);
@@ -112,38 +123,15 @@ pub fn load(dir: &Path) -> Result<Loaded> {
         .and_then(|h| serde_json::from_slice(h).ok())
         .ok_or_else(|| bad("has a damaged header"))?;
     at += hl;
-    let mut take_f64 = |n: usize| -> Result<Vec<f64>> {
-        let end = at + 8 * n;
-        let raw = bytes.get(at..end).ok_or_else(|| bad("is truncated"))?;
-        at = end;
-        Ok(raw
-            .chunks_exact(8)
-            .map(|c| f64::from_le_bytes(c.try_into().expect("8 bytes")))
-            .collect())
-    };
+    let mut take = |n: usize| f64s(&bytes, &mut at, n).ok_or_else(|| bad("is truncated"));
     let n = header.molecules;
-    let (z, r, vz, vr, vt, erot) = (
-        take_f64(n)?,
-        take_f64(n)?,
-        take_f64(n)?,
-        take_f64(n)?,
-        take_f64(n)?,
-        take_f64(n)?,
-    );
+    let (z, r, vz, vr, vt, erot) = (take(n)?, take(n)?, take(n)?, take(n)?, take(n)?, take(n)?);
     let species = bytes
         .get(at..at + n)
         .ok_or_else(|| bad("is truncated"))?
         .to_vec();
     at += n;
-    let mut take = |k: usize| -> Result<Vec<f64>> {
-        let end = at + 8 * k;
-        let raw = bytes.get(at..end).ok_or_else(|| bad("is truncated"))?;
-        at = end;
-        Ok(raw
-            .chunks_exact(8)
-            .map(|c| f64::from_le_bytes(c.try_into().expect("8 bytes")))
-            .collect())
-    };
+    let mut take = |n: usize| f64s(&bytes, &mut at, n).ok_or_else(|| bad("is truncated"));
     let sigma_cr_max = take(header.sigma_cr_max)?;
     let counts = take(header.sampler_cells * header.sampler_species)?;
     let moments = take(header.sampler_cells * crate::sample::MOMENTS)?;

@@ -60,53 +60,39 @@ fn write_hdf5(path: &Path, plan: &Plan, fields: &Fields, meta: &[(&str, String)]
         let g = &plan.grid;
         let (nz, nr) = (g.z.len(), g.r.len());
         let grid = file.create_group("grid").map_err(fail)?;
-        let put1 = |group: &hdf5::Group,
-                    name: &str,
-                    data: &[f64],
-                    units: &str,
-                    what: &str|
+        // One dataset with its units and description; 1-D when `shape` is None, nz × nr otherwise.
+        let put = |group: &hdf5::Group,
+                   name: &str,
+                   data: &[f64],
+                   two_d: bool,
+                   units: &str,
+                   what: &str|
          -> Result<()> {
+            let shape: Vec<usize> = if two_d {
+                vec![nz, nr]
+            } else {
+                vec![data.len()]
+            };
             let ds = group
                 .new_dataset::<f64>()
-                .shape([data.len()])
+                .shape(shape)
                 .create(name)
                 .map_err(fail)?;
             ds.write_raw(data).map_err(fail)?;
-            ds.new_attr::<VarLenUnicode>()
-                .create("units")
-                .map_err(fail)?
-                .write_scalar(&text(units)?)
-                .map_err(fail)?;
-            ds.new_attr::<VarLenUnicode>()
-                .create("description")
-                .map_err(fail)?
-                .write_scalar(&text(what)?)
-                .map_err(fail)?;
+            for (key, value) in [("units", units), ("description", what)] {
+                ds.new_attr::<VarLenUnicode>()
+                    .create(key)
+                    .map_err(fail)?
+                    .write_scalar(&text(value)?)
+                    .map_err(fail)?;
+            }
             Ok(())
         };
-        let put2 = |group: &hdf5::Group,
-                    name: &str,
-                    data: &[f64],
-                    units: &str,
-                    what: &str|
-         -> Result<()> {
-            let ds = group
-                .new_dataset::<f64>()
-                .shape([nz, nr])
-                .create(name)
-                .map_err(fail)?;
-            ds.write_raw(data).map_err(fail)?;
-            ds.new_attr::<VarLenUnicode>()
-                .create("units")
-                .map_err(fail)?
-                .write_scalar(&text(units)?)
-                .map_err(fail)?;
-            ds.new_attr::<VarLenUnicode>()
-                .create("description")
-                .map_err(fail)?
-                .write_scalar(&text(what)?)
-                .map_err(fail)?;
-            Ok(())
+        let put1 = |group: &hdf5::Group, name: &str, data: &[f64], units: &str, what: &str| {
+            put(group, name, data, false, units, what)
+        };
+        let put2 = |group: &hdf5::Group, name: &str, data: &[f64], units: &str, what: &str| {
+            put(group, name, data, true, units, what)
         };
         put1(
             &grid,
