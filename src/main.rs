@@ -282,7 +282,13 @@ fn cmd_run(
     let interrupted = std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false));
     {
         let flag = interrupted.clone();
-        let _ = ctrlc::set_handler(move || flag.store(true, std::sync::atomic::Ordering::SeqCst));
+        // A second signal while the first is being handled ends the process at once.
+        let _ = ctrlc::set_handler(move || {
+            if flag.swap(true, std::sync::atomic::Ordering::SeqCst) {
+                eprintln!("kinflux: second signal, exiting without saving");
+                std::process::exit(i32::from(EXIT_INTERRUPTED));
+            }
+        });
     }
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads.unwrap_or(0))
@@ -541,6 +547,16 @@ fn print_result(s: &Summary) {
         println!(
             "  quality (measured)     collision separation/λ1 {sep:.3}, Δt/τ {dtt:.3}, {:.1} molecules per upstream cell",
             q.mean_molecules_per_upstream_cell
+        );
+    }
+    if let Some(l) = &q.local {
+        println!(
+            "  quality (over cells)   cell/λ up to {:.3}, Δt/τ up to {:.3}, {:.1} to {:.1} molecules per cell ({} cells sampled)",
+            l.cell_over_mean_free_path_max,
+            l.time_step_over_collision_time_max,
+            l.molecules_per_cell_min,
+            l.molecules_per_cell_max,
+            l.cells_sampled
         );
     }
     for w in &q.warnings {

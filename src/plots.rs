@@ -128,11 +128,23 @@ pub fn field_map(
         .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), &v| {
             (l.min(v), h.max(v))
         });
+    // nothing sampled yet (a run stopped before the end of start-up): an empty map on a unit scale
+    let (lo, hi) = if lo.is_finite() && hi.is_finite() {
+        (lo, hi)
+    } else {
+        (0.0, 1.0)
+    };
+    // a uniform field still needs a scale of finite width
+    let (lo, hi) = if hi - lo > 1e-9 * lo.abs().max(1e-300) {
+        (lo, hi)
+    } else {
+        (lo - 0.5 * lo.abs().max(1.0), hi + 0.5 * hi.abs().max(1.0))
+    };
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, (1000, 520)).into_drawing_area();
         root.fill(&WHITE).map_err(|e| fail(path, e))?;
-        let (main, bar) = root.split_horizontally(880);
+        let (main, bar) = root.split_horizontally(860);
         let (z0, z1) = (plan.geometry.z_min / a, plan.geometry.z_max / a);
         let r1 = plan.geometry.r_max / a;
         let mut c = ChartBuilder::on(&main)
@@ -181,8 +193,8 @@ pub fn field_map(
             .margin_top(40)
             .margin_bottom(50)
             .margin_right(10)
-            .y_label_area_size(60)
-            .build_cartesian_2d(0.0..1.0, lo.min(hi)..hi.max(lo + 1e-30))
+            .y_label_area_size(75)
+            .build_cartesian_2d(0.0..1.0, lo..hi)
             .map_err(|e| fail(path, e))?;
         b.configure_mesh()
             .disable_x_axis()
@@ -192,6 +204,8 @@ pub fn field_map(
             } else {
                 units.to_string()
             })
+            .axis_desc_style(("sans-serif", 14))
+            .label_style(("sans-serif", 13))
             .y_label_formatter(&|y| format!("{y:.3}"))
             .draw()
             .map_err(|e| fail(path, e))?;
@@ -212,12 +226,57 @@ pub fn field_map(
     crate::output::write_atomic(path, svg.as_bytes())
 }
 
-/// Every chart of a run into `dir`; returns the files written.
+/// Rasterise an SVG chart to PNG (resvg; text with the system's fonts). Returns false, writing
+/// nothing, when the machine has no font to draw the labels with.
+pub fn svg_to_png(svg_path: &Path, png_path: &Path) -> Result<bool> {
+    use resvg::{tiny_skia, usvg};
+    use std::sync::OnceLock;
+    static FONTS: OnceLock<std::sync::Arc<usvg::fontdb::Database>> = OnceLock::new();
+    let fonts = FONTS.get_or_init(|| {
+        let mut db = usvg::fontdb::Database::new();
+        db.load_system_fonts();
+        // Charts ask for the generic "sans-serif"; map it to a family this machine has.
+        let families: Vec<String> = db
+            .faces()
+            .flat_map(|f| f.families.iter().map(|(name, _)| name.clone()))
+            .collect();
+        let pick = ["DejaVu Sans", "Liberation Sans", "Noto Sans", "FreeSans"]
+            .iter()
+            .map(|s| s.to_string())
+            .find(|want| families.contains(want))
+            .or_else(|| families.first().cloned());
+        if let Some(family) = pick {
+            db.set_sans_serif_family(family.clone());
+            db.set_serif_family(family);
+        }
+        std::sync::Arc::new(db)
+    });
+    if fonts.is_empty() {
+        return Ok(false);
+    }
+    let svg = std::fs::read_to_string(svg_path).map_err(|e| Error::io(svg_path, e))?;
+    let opt = usvg::Options {
+        fontdb: fonts.clone(),
+        font_family: "sans-serif".to_string(),
+        ..usvg::Options::default()
+    };
+    let tree = usvg::Tree::from_str(&svg, &opt).map_err(|e| fail(svg_path, e))?;
+    let size = tree.size().to_int_size();
+    let mut pixmap = tiny_skia::Pixmap::new(size.width(), size.height())
+        .ok_or_else(|| fail(png_path, "empty image"))?;
+    pixmap.fill(tiny_skia::Color::WHITE);
+    resvg::render(&tree, tiny_skia::Transform::default(), &mut pixmap.as_mut());
+    let png = pixmap.encode_png().map_err(|e| fail(png_path, e))?;
+    crate::output::write_atomic(png_path, &png)?;
+    Ok(true)
+}
+
+/// Every chart of a run into `dir` (SVG, and PNG where fonts exist); returns the files written.
 pub fn write_all(dir: &Path, sim: &Simulation, fields: &Fields) -> Result<Vec<PathBuf>> {
-    let mut out = Vec::new();
+    let mut svgs = Vec::new();
     let p = dir.join("convergence.svg");
     convergence(&p, sim)?;
-    out.push(p);
+    svgs.push(p);
     for (file, values, title, units, log) in [
         (
             "number_density.svg",
@@ -243,7 +302,17 @@ pub fn write_all(dir: &Path, sim: &Simulation, fields: &Fields) -> Result<Vec<Pa
     ] {
         let p = dir.join(file);
         field_map(&p, &sim.plan, values, title, units, log)?;
-        out.push(p);
+        svgs.push(p);
+    }
+    let mut out = svgs.clone();
+    for s in svgs {
+        let png = s.with_extension("png");
+        if svg_to_png(&s, &png)? {
+            out.push(png);
+        } else {
+            eprintln!("kinflux: note: no system font found, PNG charts skipped (install fonts-dejavu-core)");
+            break;
+        }
     }
     Ok(out)
 }

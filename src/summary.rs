@@ -120,6 +120,10 @@ pub struct QualityReport {
     /// Mean simulated molecules per upstream cell over the sampling steps (what the numerics
     /// plan targets; the common-practice limit applies to it).
     pub mean_molecules_per_upstream_cell: f64,
+    /// Over the sampled gas cells (from the sampled fields; DSMC mode): the largest cell size
+    /// over the local mean free path, the largest time step over the local mean collision time
+    /// λ/c̄, and the fewest and most simulated molecules per cell.
+    pub local: Option<LocalQuality>,
     pub warnings: Vec<String>,
 }
 
@@ -144,6 +148,19 @@ pub struct AngularDistribution {
     pub flux_per_solid_angle_over_cosine_law: Vec<f64>,
     /// Molecules (real) leaving downstream per second, the normalisation.
     pub molecules_per_s: f64,
+}
+
+/// Extremes of the quality figures over the domain.
+#[derive(Debug, Clone, Serialize)]
+pub struct LocalQuality {
+    pub cell_over_mean_free_path_max: f64,
+    pub cell_over_mean_free_path_min: f64,
+    pub time_step_over_collision_time_max: f64,
+    pub molecules_per_cell_min: f64,
+    pub molecules_per_cell_max: f64,
+    /// Cells whose size exceeds the local mean free path (common-practice limit).
+    pub cells_larger_than_mean_free_path: usize,
+    pub cells_sampled: usize,
 }
 
 /// Everything written to summary.json.
@@ -335,7 +352,23 @@ pub fn quality_report(sim: &Simulation, sampling_steps: u64) -> QualityReport {
     } else {
         f64::NAN
     };
+    let local = (plan.collisions.is_some() && sim.fields.steps > 0).then(|| local_quality(sim));
     let mut warnings = plan.warnings();
+    if let Some(l) = &local {
+        if l.cell_over_mean_free_path_max > limits::CELL_OVER_LAMBDA {
+            warnings.push(format!(
+                "{} of {} cells are larger than the local mean free path (largest {:.2} λ; common practice: below {})",
+                l.cells_larger_than_mean_free_path, l.cells_sampled, l.cell_over_mean_free_path_max, limits::CELL_OVER_LAMBDA
+            ));
+        }
+        if l.time_step_over_collision_time_max > limits::DT_OVER_TAU {
+            warnings.push(format!(
+                "the time step reaches {:.2} local mean collision times (common practice: below {})",
+                l.time_step_over_collision_time_max,
+                limits::DT_OVER_TAU
+            ));
+        }
+    }
     use crate::numerics::limits;
     if let Some(s) = sep {
         if s > limits::SEPARATION_OVER_LAMBDA {
@@ -359,6 +392,7 @@ pub fn quality_report(sim: &Simulation, sampling_steps: u64) -> QualityReport {
         measured_time_step_over_collision_time: dt_tau,
         mean_molecules_per_cell: mean_ppc,
         mean_molecules_per_upstream_cell: mean_up,
+        local,
         warnings,
     }
 }
@@ -411,4 +445,48 @@ fn profiles(sim: &Simulation, mdot: f64) -> (ApertureProfile, AngularDistributio
             molecules_per_s: total * plan.fnum / time,
         },
     )
+}
+
+/// Quality extremes over the sampled gas cells.
+fn local_quality(sim: &Simulation) -> LocalQuality {
+    let plan = &sim.plan;
+    let g = &plan.grid;
+    let f = sim.fields.fields(plan);
+    let nr = g.r.len();
+    let steps = sim.fields.steps.max(1) as f64;
+    let mbar = plan.case.gas.mean_mass();
+    let mut q = LocalQuality {
+        cell_over_mean_free_path_max: 0.0,
+        cell_over_mean_free_path_min: f64::INFINITY,
+        time_step_over_collision_time_max: 0.0,
+        molecules_per_cell_min: f64::INFINITY,
+        molecules_per_cell_max: 0.0,
+        cells_larger_than_mean_free_path: 0,
+        cells_sampled: 0,
+    };
+    for c in 0..g.cells() {
+        let lambda = f.mean_free_path[c];
+        if g.volume[c] <= 0.0 || !lambda.is_finite() || lambda <= 0.0 {
+            continue;
+        }
+        let (za, zb) = g.z.edges(c / nr);
+        let (ra, rb) = g.r.edges(c % nr);
+        let size = (zb - za).max(rb - ra);
+        let ratio = size / lambda;
+        let t = f.temperature[c].max(1.0);
+        let cbar = (8.0 * crate::constants::BOLTZMANN * t / (std::f64::consts::PI * mbar)).sqrt();
+        let per_cell = f.samples[c] / steps;
+        q.cells_sampled += 1;
+        q.cell_over_mean_free_path_max = q.cell_over_mean_free_path_max.max(ratio);
+        q.cell_over_mean_free_path_min = q.cell_over_mean_free_path_min.min(ratio);
+        q.time_step_over_collision_time_max = q
+            .time_step_over_collision_time_max
+            .max(plan.dt * cbar / lambda);
+        q.molecules_per_cell_min = q.molecules_per_cell_min.min(per_cell);
+        q.molecules_per_cell_max = q.molecules_per_cell_max.max(per_cell);
+        if ratio > crate::numerics::limits::CELL_OVER_LAMBDA {
+            q.cells_larger_than_mean_free_path += 1;
+        }
+    }
+    q
 }
