@@ -362,14 +362,7 @@ fn rotational_relaxation_at_constant_collision_number() {
         t += dt;
     }
     // least-squares slope of ln(T_eq − T_rot) against νt
-    let nn = xs.len() as f64;
-    let (mx, my) = (xs.iter().sum::<f64>() / nn, ys.iter().sum::<f64>() / nn);
-    let slope = xs
-        .iter()
-        .zip(&ys)
-        .map(|(x, y)| (x - mx) * (y - my))
-        .sum::<f64>()
-        / xs.iter().map(|x| (x - mx).powi(2)).sum::<f64>();
+    let slope = crate::util::least_squares_slope(&xs, &ys);
     assert!(
         (-slope * z - 1.0).abs() < 0.02,
         "relaxation rate ν/Z × {}",
@@ -502,14 +495,7 @@ fn stress_relaxation_rate_gives_chapman_enskog_viscosity() {
             xs.push(t * rate);
             ys.push((aniso(&b) / a0).ln());
         }
-        let nn = xs.len() as f64;
-        let (mx, my) = (xs.iter().sum::<f64>() / nn, ys.iter().sum::<f64>() / nn);
-        let slope = xs
-            .iter()
-            .zip(&ys)
-            .map(|(x, y)| (x - mx) * (y - my))
-            .sum::<f64>()
-            / xs.iter().map(|x| (x - mx).powi(2)).sum::<f64>();
+        let slope = crate::util::least_squares_slope(&xs, &ys);
         assert!(
             (-slope - 1.0).abs() < tol,
             "{name}: decay rate / (p/μ) = {}",

@@ -78,3 +78,12 @@ pub fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
     std::fs::write(&p, text).expect("write");
     p
 }
+
+/// Least-squares slope of ys against xs.
+pub fn least_squares_slope(xs: &[f64], ys: &[f64]) -> f64 {
+    let n = xs.len() as f64;
+    let (mx, my) = (xs.iter().sum::<f64>() / n, ys.iter().sum::<f64>() / n);
+    let sxy: f64 = xs.iter().zip(ys).map(|(x, y)| (x - mx) * (y - my)).sum();
+    let sxx: f64 = xs.iter().map(|x| (x - mx).powi(2)).sum();
+    sxy / sxx
+}
