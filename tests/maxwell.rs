@@ -90,10 +90,6 @@ fn sampled_speeds_pass_chi_square_against_maxwell_boltzmann() {
     let vmp = (2.0 * BOLTZMANN * T / m).sqrt();
     let n = 400_000;
     let c = speeds(n, 3);
-    let cdf = |v: f64| {
-        let x = v / vmp;
-        erf(x) - 2.0 / std::f64::consts::PI.sqrt() * x * (-x * x).exp()
-    };
     let bins = 50;
     let top = 3.5 * vmp;
     let mut obs = vec![0.0; bins + 1];
@@ -101,35 +97,31 @@ fn sampled_speeds_pass_chi_square_against_maxwell_boltzmann() {
         let b = ((v / top) * bins as f64) as usize;
         obs[b.min(bins)] += 1.0;
     }
-    let mut chi2 = 0.0;
-    for b in 0..=bins {
-        let lo = b as f64 * top / bins as f64;
-        let p = if b == bins {
-            1.0 - cdf(top)
-        } else {
-            cdf(lo + top / bins as f64) - cdf(lo)
+    // chi-square of the observed bins against the Maxwell–Boltzmann distribution with most
+    // probable speed `mp`: CDF erf(x) − (2/√π) x e^{−x²}, x = c/mp
+    let chi2_for = |mp: f64| {
+        let cdf = |v: f64| {
+            let x = v / mp;
+            erf(x) - 2.0 / std::f64::consts::PI.sqrt() * x * (-x * x).exp()
         };
-        let e = p * n as f64;
-        chi2 += (obs[b] - e).powi(2) / e;
-    }
+        (0..=bins)
+            .map(|b| {
+                let lo = b as f64 * top / bins as f64;
+                let p = if b == bins {
+                    1.0 - cdf(top)
+                } else {
+                    cdf(lo + top / bins as f64) - cdf(lo)
+                };
+                let e = p * n as f64;
+                (obs[b] - e).powi(2) / e
+            })
+            .sum::<f64>()
+    };
+    let chi2 = chi2_for(vmp);
     let critical = ChiSquared::new(bins as f64).unwrap().inverse_cdf(0.999);
     assert!(chi2 < critical, "chi2 = {chi2}, critical {critical}");
     // A wrong temperature must fail the same test (the test can fail).
-    let hot = vmp * 1.03;
-    let cdf_hot = |v: f64| {
-        let x = v / hot;
-        erf(x) - 2.0 / std::f64::consts::PI.sqrt() * x * (-x * x).exp()
-    };
-    let mut chi2_hot = 0.0;
-    for b in 0..=bins {
-        let lo = b as f64 * top / bins as f64;
-        let p = if b == bins {
-            1.0 - cdf_hot(top)
-        } else {
-            cdf_hot(lo + top / bins as f64) - cdf_hot(lo)
-        };
-        chi2_hot += (obs[b] - p * n as f64).powi(2) / (p * n as f64);
-    }
+    let chi2_hot = chi2_for(vmp * 1.03);
     assert!(
         chi2_hot > critical,
         "a 6 % temperature error went unnoticed: {chi2_hot}"
