@@ -91,8 +91,11 @@ pub struct SolverSpec {
     pub max_wall_time: f64,
     /// Optional step budget.
     pub max_steps: Option<u64>,
-    /// Random seed.
+    /// Seed of the random streams. For a statistical replica K of N (N > 1) this is the
+    /// case's seed mixed with K (`streams::replica_seed`), so replicas are independent.
     pub seed: u64,
+    /// Which statistical replica of the case this run is (`solver.replica = "K/N"`, default 1/1).
+    pub replica: Replica,
     /// Time step, s (None = automatic).
     pub time_step: Option<f64>,
     /// Target number of simulated molecules in the initial fill (None = automatic).
@@ -103,6 +106,32 @@ pub struct SolverSpec {
     pub rotational_relaxation: crate::collide::RotationalRelaxation,
     /// Wall time between checkpoints, s.
     pub checkpoint_interval: f64,
+}
+
+/// Statistical replica K of N of one case: same physics, independent random streams.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
+pub struct Replica {
+    /// 1-based index K.
+    pub index: u64,
+    /// Number of replicas N.
+    pub count: u64,
+}
+
+impl Replica {
+    /// The single run of a case (1/1).
+    pub const ONE: Replica = Replica { index: 1, count: 1 };
+
+    /// Read "K/N" with 1 ≤ K ≤ N.
+    pub fn parse(text: &str) -> Option<Replica> {
+        let (k, n) = text.trim().split_once('/')?;
+        let (index, count) = (k.trim().parse().ok()?, n.trim().parse().ok()?);
+        (index >= 1 && index <= count && count <= 1_000_000).then_some(Replica { index, count })
+    }
+
+    /// "K/N".
+    pub fn label(&self) -> String {
+        format!("{}/{}", self.index, self.count)
+    }
 }
 
 /// A resolved case: every value in SI, checked.
@@ -581,8 +610,21 @@ fn resolve(root: &Table, file: &str) -> Result<Case> {
                 "molecules_per_cell",
                 "rotational_collision_number",
                 "checkpoint_interval",
+                "replica",
             ],
         )?;
+        let replica = match s.string("replica", "a replica \"K/N\" such as \"2/8\"")? {
+            None => Replica::ONE,
+            Some(x) => Replica::parse(x).ok_or_else(|| {
+                s.reject(
+                    "replica",
+                    "a replica \"K/N\" with whole numbers 1 <= K <= N, e.g. \"2/8\"",
+                )
+            })?,
+        };
+        let seed = s
+            .unsigned("seed", "a whole number of 0 or more")?
+            .unwrap_or(1);
         let target = s
             .number("target_uncertainty", "a relative uncertainty such as 0.01")?
             .unwrap_or(0.01);
@@ -651,9 +693,12 @@ fn resolve(root: &Table, file: &str) -> Result<Case> {
             target_uncertainty: target,
             max_wall_time: wall,
             max_steps,
-            seed: s
-                .unsigned("seed", "a whole number of 0 or more")?
-                .unwrap_or(1),
+            seed: if replica.count > 1 {
+                crate::streams::replica_seed(seed, replica.index)
+            } else {
+                seed
+            },
+            replica,
             time_step: dt,
             molecules,
             molecules_per_cell: per_cell,

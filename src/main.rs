@@ -4,9 +4,11 @@
 //! key, value and expectation), 1 any other failure.
 
 use clap::{Parser, Subcommand};
-use kinflux::{case, gas, numerics::Plan, output, simulation::Simulation, summary::Summary};
+use kinflux::{case, gas, numerics::Plan, runner, simulation::Simulation, summary::Summary};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
 use std::time::Duration;
 
 #[derive(Parser)]
@@ -45,6 +47,22 @@ enum Command {
         /// every sample before and after. Only solver budgets may be changed with --set.
         #[arg(long, value_name = "DIR")]
         resume: Option<PathBuf>,
+        /// Run statistical replica K of N of the case (independent random streams); combine
+        /// the N result directories with `kinflux merge`.
+        #[arg(long, value_name = "K/N")]
+        replica: Option<String>,
+    },
+    /// Combine statistical replicas of one case (from `run --replica K/N`) into one result.
+    Merge {
+        /// Result directories of the replicas (each with its checkpoint.bin).
+        #[arg(required = true, num_args = 1..)]
+        dirs: Vec<PathBuf>,
+        /// Directory for the merged result.
+        #[arg(long)]
+        out: PathBuf,
+        /// Overwrite a directory that already holds results.
+        #[arg(long)]
+        force: bool,
     },
     /// Validate a case and print the derived regime and numerics without running.
     Check {
@@ -105,9 +123,10 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         force,
         quiet,
         resume,
+        replica,
     } = cli.command
     {
-        return cmd_run(&case, out, &set, threads, force, quiet, resume);
+        return cmd_run(&case, out, &set, threads, force, quiet, resume, replica);
     }
     other(cli.command).map(|()| ExitCode::SUCCESS)
 }
@@ -115,6 +134,18 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
 fn other(command: Command) -> anyhow::Result<()> {
     match command {
         Command::Run { .. } => unreachable!("handled by run"),
+        Command::Merge { dirs, out, force } => {
+            let m = kinflux::ensemble::merge(&dirs, &out, force)?;
+            println!("merged {} replicas", dirs.len());
+            print_result(&m.summary);
+            for f in &m.files {
+                println!("wrote {}", f.display());
+            }
+            for w in &m.warnings {
+                eprintln!("kinflux: warning: {w}");
+            }
+            Ok(())
+        }
         Command::Check { case, set } => {
             let c = case::load(&case, &set)?;
             let plan = Plan::new(&c)?;
@@ -213,6 +244,140 @@ fn other(command: Command) -> anyhow::Result<()> {
     }
 }
 
+/// The interrupt flag set by SIGINT/SIGTERM (installed once per process). A second signal while
+/// the first is being handled ends the process at once.
+fn interrupt_flag() -> Arc<AtomicBool> {
+    static FLAG: std::sync::OnceLock<Arc<AtomicBool>> = std::sync::OnceLock::new();
+    FLAG.get_or_init(|| {
+        let flag = Arc::new(AtomicBool::new(false));
+        let f = flag.clone();
+        let _ = ctrlc::set_handler(move || {
+            if f.swap(true, Ordering::SeqCst) {
+                eprintln!("kinflux: second signal, exiting without saving");
+                std::process::exit(i32::from(EXIT_INTERRUPTED));
+            }
+        });
+        flag
+    })
+    .clone()
+}
+
+/// A live progress line on a terminal (None for batch jobs, which get plain log lines, or quiet).
+fn progress_bar(quiet: bool) -> Option<indicatif::ProgressBar> {
+    let terminal = std::io::IsTerminal::is_terminal(&std::io::stderr());
+    (terminal && !quiet).then(|| {
+        let b = indicatif::ProgressBar::new_spinner();
+        b.set_style(
+            indicatif::ProgressStyle::with_template("{spinner} {elapsed_precise} {msg}")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_spinner()),
+        );
+        b
+    })
+}
+
+/// The progress callback: updates `bar`, or prints a log line when there is none; silent when
+/// quiet.
+fn progress_callback(
+    quiet: bool,
+    bar: Option<indicatif::ProgressBar>,
+) -> impl FnMut(&Simulation, Option<kinflux::monitor::BatchEstimate>, Duration) + Send {
+    move |s: &Simulation, e: Option<kinflux::monitor::BatchEstimate>, t: Duration| {
+        if quiet {
+            return;
+        }
+        let (flow, left) = match e {
+            Some(e) => {
+                let target = s.plan.case.solver.target_uncertainty;
+                // batch-means width shrinks like 1/sqrt(steps): steps still needed
+                let done = s.step as f64 - s.steady_state_step() as f64;
+                let more = done * ((e.relative() / target).powi(2) - 1.0).max(0.0);
+                let rate = s.step as f64 / t.as_secs_f64().max(1e-9);
+                (
+                    format!("{:.5e} kg/s ± {:.2} %", e.mean, 100.0 * e.relative()),
+                    format!("~{:.0} s to ±{:.2} %", more / rate, 100.0 * target),
+                )
+            }
+            None => ("(start-up)".to_string(), String::new()),
+        };
+        let line = format!(
+            "step {:>8}  molecules {:>9}  flow {}  {}",
+            s.step,
+            s.population(),
+            flow,
+            left
+        );
+        match &bar {
+            Some(b) => {
+                b.set_message(line);
+                b.tick();
+            }
+            None => eprintln!("  t = {:>7.1} s  {line}", t.as_secs_f64()),
+        }
+    }
+}
+
+/// Run one case to its end with the usual console output; the exit code says how it ended.
+pub(crate) fn run_one(mut req: runner::Request, quiet: bool) -> anyhow::Result<ExitCode> {
+    req.interrupt = Some(interrupt_flag());
+    let bar = progress_bar(quiet);
+    req.report_every = Duration::from_secs(if bar.is_some() { 1 } else { 30 });
+    let report = progress_callback(quiet, bar.clone());
+    let case_path = req.case_file.clone();
+    let out = req.out.clone();
+    let done = runner::execute(
+        &req,
+        |plan, threads| {
+            if quiet {
+                return;
+            }
+            let c = &plan.case;
+            eprintln!(
+                "kinflux {}: {} ({})",
+                env!("CARGO_PKG_VERSION"),
+                c.title,
+                case_path.display()
+            );
+            if c.solver.replica.count > 1 {
+                eprintln!("statistical replica {}", c.solver.replica.label());
+            }
+            eprintln!("caution: {}", kinflux::summary::CAUTION);
+            print_estimate(plan);
+            print_numerics(plan);
+            eprintln!(
+                "running on {threads} thread(s); results in {}",
+                out.display()
+            );
+        },
+        report,
+    );
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
+    let done = done?;
+    print_result(&done.summary);
+    for f in &done.files {
+        if f.file_name()
+            .is_some_and(|n| n != kinflux::checkpoint::FILE)
+        {
+            println!("wrote {}", f.display());
+        }
+    }
+    for w in &done.warnings {
+        eprintln!("kinflux: warning: {w}");
+    }
+    if done.stop == kinflux::monitor::StopReason::Interrupted {
+        eprintln!(
+            "kinflux: interrupted at step {}; state saved in {}. Continue with: kinflux run {} --resume {}",
+            done.step,
+            out.join(kinflux::checkpoint::FILE).display(),
+            case_path.display(),
+            out.display()
+        );
+        return Ok(ExitCode::from(EXIT_INTERRUPTED));
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
 #[allow(clippy::too_many_arguments)]
 fn cmd_run(
     case_path: &Path,
@@ -222,49 +387,24 @@ fn cmd_run(
     force: bool,
     quiet: bool,
     resume: Option<PathBuf>,
+    replica: Option<String>,
 ) -> anyhow::Result<ExitCode> {
-    let file = case_path.display().to_string();
-    // On resume the case is the checkpoint's own copy; only solver budgets may change.
-    let (case_text, mut overrides, saved) = match &resume {
-        None => {
-            let text = std::fs::read_to_string(case_path).map_err(|e| {
-                kinflux::Error::Input(format!("{file}: cannot read the case file: {e}"))
-            })?;
-            (text, set.to_vec(), None)
+    let mut overrides = set.to_vec();
+    if let Some(r) = replica {
+        if kinflux::case::Replica::parse(&r).is_none() {
+            return Err(kinflux::Error::Input(format!(
+                "--replica {r}: expected K/N with whole numbers 1 <= K <= N, e.g. 2/8"
+            ))
+            .into());
         }
-        Some(dir) => {
-            let l = kinflux::checkpoint::load(dir)?;
-            let given = std::fs::read_to_string(case_path).unwrap_or_default();
-            if given != l.case_text {
-                return Err(kinflux::Error::Input(format!(
-                    "{file}: differs from the case saved in {}; expected the same case file to resume (edit budgets with --set solver.max_wall_time=... instead)",
-                    dir.display()
-                ))
-                .into());
-            }
-            for s in set {
-                let key = s.split('=').next().unwrap_or("").trim();
-                if !matches!(
-                    key,
-                    "solver.max_wall_time"
-                        | "solver.max_steps"
-                        | "solver.target_uncertainty"
-                        | "solver.checkpoint_interval"
-                ) {
-                    return Err(kinflux::Error::Input(format!(
-                        "--set {s}: expected only solver.max_wall_time, solver.max_steps, solver.target_uncertainty or solver.checkpoint_interval when resuming (other keys would change the physics)"
-                    ))
-                    .into());
-                }
-            }
-            (l.case_text, l.overrides, Some(l.state))
+        if resume.is_some() {
+            return Err(kinflux::Error::Input(format!(
+                "--replica {r}: a resumed run keeps the replica it was started as; drop --replica"
+            ))
+            .into());
         }
-    };
-    if saved.is_some() {
-        overrides.extend(set.iter().cloned());
+        overrides.push(format!("solver.replica=\"{r}\""));
     }
-    let c = case::parse(&case_text, &file, &overrides)?;
-    let plan = Plan::new(&c)?;
     let out = resume.clone().or(out).unwrap_or_else(|| {
         let stem = case_path
             .file_stem()
@@ -272,174 +412,17 @@ fn cmd_run(
             .unwrap_or_else(|| "case".into());
         PathBuf::from("runs").join(stem)
     });
-    if threads == Some(0) {
-        return Err(kinflux::Error::Input("--threads 0: expected at least 1 thread".into()).into());
-    }
-    if resume.is_none() {
-        output::prepare_run_dir(&out, force)?;
-    }
-    // SIGINT/SIGTERM (Slurm preemption): finish the step, save, exit with EXIT_INTERRUPTED.
-    let interrupted = std::sync::Arc::new(std::sync::atomic::AtomicBool::new(false));
-    {
-        let flag = interrupted.clone();
-        // A second signal while the first is being handled ends the process at once.
-        let _ = ctrlc::set_handler(move || {
-            if flag.swap(true, std::sync::atomic::Ordering::SeqCst) {
-                eprintln!("kinflux: second signal, exiting without saving");
-                std::process::exit(i32::from(EXIT_INTERRUPTED));
-            }
-        });
-    }
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads.unwrap_or(0))
-        .build()?;
-    let nthreads = pool.current_num_threads();
-    if !quiet {
-        eprintln!(
-            "kinflux {}: {} ({})",
-            env!("CARGO_PKG_VERSION"),
-            c.title,
-            case_path.display()
-        );
-        eprintln!("caution: {}", kinflux::summary::CAUTION);
-        print_estimate(&plan);
-        print_numerics(&plan);
-        eprintln!(
-            "running on {nthreads} thread(s); results in {}",
-            out.display()
-        );
-    }
-    // A live progress line on a terminal; plain periodic log lines otherwise (batch jobs).
-    let terminal = std::io::IsTerminal::is_terminal(&std::io::stderr());
-    let bar = (terminal && !quiet).then(|| {
-        let b = indicatif::ProgressBar::new_spinner();
-        b.set_style(
-            indicatif::ProgressStyle::with_template("{spinner} {elapsed_precise} {msg}")
-                .unwrap_or_else(|_| indicatif::ProgressStyle::default_spinner()),
-        );
-        b
-    });
-    let every = Duration::from_secs(if bar.is_some() { 1 } else { 30 });
-    let target = c.solver.target_uncertainty;
-    let (mut sim, outcome) = pool.install(|| {
-        let mut sim = match saved {
-            Some(state) => Simulation::resume(plan, state),
-            None => Simulation::new(plan),
-        };
-        sim.interrupt = Some(interrupted.clone());
-        let (dir, text, name, ovr) = (
-            out.clone(),
-            case_text.clone(),
-            file.clone(),
-            overrides.clone(),
-        );
-        sim.checkpoint_hook = Some((
-            Duration::from_secs_f64(c.solver.checkpoint_interval),
-            Box::new(move |s: &Simulation| {
-                if let Err(e) = kinflux::checkpoint::save(&dir, s, &text, &name, &ovr) {
-                    eprintln!("kinflux: warning: checkpoint not written: {e}");
-                }
-            }),
-        ));
-        let outcome = sim.run(every, |s, e, t| {
-            if quiet {
-                return;
-            }
-            let (flow, left) = match e {
-                Some(e) => {
-                    // batch-means width shrinks like 1/sqrt(steps): steps still needed
-                    let done = s.step as f64 - s.steady_state_step() as f64;
-                    let more = done * ((e.relative() / target).powi(2) - 1.0).max(0.0);
-                    let rate = s.step as f64 / t.as_secs_f64().max(1e-9);
-                    (
-                        format!("{:.5e} kg/s ± {:.2} %", e.mean, 100.0 * e.relative()),
-                        format!("~{:.0} s to ±{:.2} %", more / rate, 100.0 * target),
-                    )
-                }
-                None => ("(start-up)".to_string(), String::new()),
-            };
-            let line = format!(
-                "step {:>8}  molecules {:>9}  flow {}  {}",
-                s.step,
-                s.population(),
-                flow,
-                left
-            );
-            match &bar {
-                Some(b) => {
-                    b.set_message(line);
-                    b.tick();
-                }
-                None => eprintln!("  t = {:>7.1} s  {line}", t.as_secs_f64()),
-            }
-        });
-        (sim, outcome)
-    });
-    if let Some(b) = bar {
-        b.finish_and_clear();
-    }
-    // The final state is always saved, so a finished run can also be extended (--resume).
-    sim.checkpoint_hook = None;
-    kinflux::checkpoint::save(&out, &sim, &case_text, &file, &overrides)?;
-    let summary = Summary::new(&sim, &outcome, nthreads);
-    output::write_json(&out.join("summary.json"), &summary)?;
-    output::write_atomic(
-        &out.join("history.csv"),
-        output::history_csv(&sim).as_bytes(),
-    )?;
-    print_result(&summary);
-    println!("wrote {}", out.join("summary.json").display());
-    println!("wrote {}", out.join("history.csv").display());
-    let c = &sim.plan.case;
-    let meta = [
-        ("title", c.title.clone()),
-        ("kinflux_version", env!("CARGO_PKG_VERSION").to_string()),
-        ("case_file", c.source.clone()),
-        ("gas", c.gas.label()),
-        ("mode", summary.mode.to_string()),
-        ("sampling_steps", sim.fields.steps.to_string()),
-        ("molecule_weight", format!("{:e}", sim.plan.fnum)),
-        ("time_step_s", format!("{:e}", sim.plan.dt)),
-        ("aperture_diameter_m", format!("{:e}", c.aperture.diameter)),
-        (
-            "partition_thickness_m",
-            format!("{:e}", c.aperture.thickness),
-        ),
-        (
-            "coordinates",
-            "z axial (flow +z, partition at 0 <= z <= thickness), r radial; arrays [nz][nr]"
-                .to_string(),
-        ),
-        ("caution", kinflux::summary::CAUTION.to_string()),
-    ];
-    let fields = sim.fields.fields(&sim.plan);
-    match kinflux::field_output::write(&out, &sim.plan, &fields, &meta) {
-        Ok(files) => {
-            for f in files {
-                println!("wrote {}", f.display());
-            }
-        }
-        Err(e) => eprintln!("kinflux: warning: field files not written: {e}"),
-    }
-    match kinflux::plots::write_all(&out, &sim, &fields) {
-        Ok(files) => {
-            for f in files {
-                println!("wrote {}", f.display());
-            }
-        }
-        Err(e) => eprintln!("kinflux: warning: charts not written: {e}"),
-    }
-    if outcome.stop == kinflux::monitor::StopReason::Interrupted {
-        eprintln!(
-            "kinflux: interrupted at step {}; state saved in {}. Continue with: kinflux run {} --resume {}",
-            sim.step,
-            out.join(kinflux::checkpoint::FILE).display(),
-            case_path.display(),
-            out.display()
-        );
-        return Ok(ExitCode::from(EXIT_INTERRUPTED));
-    }
-    Ok(ExitCode::SUCCESS)
+    let req = runner::Request {
+        case_file: case_path.to_path_buf(),
+        overrides,
+        out,
+        resume: resume.is_some(),
+        force,
+        threads,
+        interrupt: None,
+        report_every: Duration::from_secs(30),
+    };
+    run_one(req, quiet)
 }
 
 fn print_estimate(plan: &Plan) {

@@ -64,6 +64,49 @@ pub fn batch_means(series: &[f64]) -> Option<BatchEstimate> {
     })
 }
 
+/// Student t quantile t(0.975, ν) for ν ≥ 31 degrees of freedom, by the Cornish–Fisher
+/// expansion about the normal quantile (Abramowitz & Stegun 1964, eq. 26.7.5; error below 1e-4
+/// for ν ≥ 31, e.g. 2.0394 at ν = 31 against the tabulated 2.0395).
+pub fn t_975(nu: f64) -> f64 {
+    let z: f64 = 1.959_963_985;
+    let (z3, z5) = (z.powi(3), z.powi(5));
+    z + (z3 + z) / (4.0 * nu) + (5.0 * z5 + 16.0 * z3 + 3.0 * z) / (96.0 * nu * nu)
+}
+
+/// Batch-means estimate pooled over independent series (statistical replicas of one case):
+/// each series is batched on its own; the pooled mean weights each series by its steps, its
+/// variance is Σ (n_i/n)² s_i², and the interval uses t with Σ (B − 1) degrees of freedom. With
+/// one series this is exactly [`batch_means`]. `None` unless every series has enough steps.
+pub fn pooled_batch_means(series: &[&[f64]]) -> Option<BatchEstimate> {
+    if series.len() == 1 {
+        return batch_means(series[0]);
+    }
+    let parts: Vec<BatchEstimate> = series
+        .iter()
+        .map(|s| batch_means(s))
+        .collect::<Option<_>>()?;
+    let n: f64 = parts.iter().map(|e| e.steps_used as f64).sum();
+    if n == 0.0 {
+        return None;
+    }
+    let mean = parts
+        .iter()
+        .map(|e| e.mean * e.steps_used as f64)
+        .sum::<f64>()
+        / n;
+    let var: f64 = parts
+        .iter()
+        .map(|e| (e.steps_used as f64 / n * e.half_width / T_975_31).powi(2))
+        .sum();
+    let dof = (parts.len() * (BATCHES - 1)) as f64;
+    Some(BatchEstimate {
+        mean,
+        half_width: t_975(dof) * var.sqrt(),
+        steps_used: n as usize,
+        batch_len: parts[0].batch_len,
+    })
+}
+
 /// MSER-5 truncation point of a time series (White 1997, Simulation 69; White, Cobb & Spratt
 /// 2000, Proc. Winter Simulation Conf.): the series is averaged in batches of 5; the number d
 /// of leading batches to discard minimises the marginal standard error
@@ -109,6 +152,8 @@ pub enum StopReason {
     MaxWallTime,
     /// Interrupted by a signal.
     Interrupted,
+    /// Several statistical replicas combined by `kinflux merge` (each stopped by its own rule).
+    Merged,
 }
 
 impl StopReason {
@@ -119,6 +164,7 @@ impl StopReason {
             StopReason::MaxSteps => "step budget (solver.max_steps) used up",
             StopReason::MaxWallTime => "wall-time budget (solver.max_wall_time) used up",
             StopReason::Interrupted => "interrupted",
+            StopReason::Merged => "statistical replicas merged",
         }
     }
 }
@@ -139,6 +185,28 @@ mod tests {
             .map(|i| if i % 2 == 0 { 0.1 } else { -0.1 })
             .collect();
         assert!(mser5(&flat) < 100);
+    }
+
+    #[test]
+    fn t_quantile_matches_tables() {
+        // t(0.975, ν) from tables (Abramowitz & Stegun 1964, table 26.10): 31 → 2.0395,
+        // 60 → 2.0003, 120 → 1.9799
+        for (nu, t) in [(31.0, 2.0395), (60.0, 2.0003), (120.0, 1.9799)] {
+            assert!((t_975(nu) - t).abs() < 2e-4, "ν = {nu}: {}", t_975(nu));
+        }
+    }
+
+    #[test]
+    fn pooling_equal_series_halves_the_variance() {
+        // two copies of one alternating series: same mean, variance of the pooled mean halved
+        let s: Vec<f64> = (0..32 * 20).map(|i| ((i / 20) % 3) as f64).collect();
+        let one = batch_means(&s).unwrap();
+        let two = pooled_batch_means(&[&s, &s]).unwrap();
+        assert!((two.mean - one.mean).abs() < 1e-12);
+        let expected = one.half_width / 2f64.sqrt() * t_975(62.0) / T_975_31;
+        assert!((two.half_width - expected).abs() < 1e-12 * expected.max(1.0));
+        assert_eq!(pooled_batch_means(&[&s]), Some(one));
+        assert!(pooled_batch_means(&[&s, &s[..10]]).is_none());
     }
 
     #[test]

@@ -80,6 +80,15 @@ pub fn write_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<()> {
     write_atomic(path, text.as_bytes())
 }
 
+/// One CSV field: quoted (with inner quotes doubled) when it holds a comma, quote or line break.
+pub fn csv_field(s: &str) -> String {
+    if s.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
 /// The run history as CSV: one row per step with the step's net mass flow, and every 16 steps
 /// after the steady-state start the running mean and 95 % half-width (batch means), so the
 /// convergence of the estimate can be plotted.

@@ -272,11 +272,19 @@ pub fn svg_to_png(svg_path: &Path, png_path: &Path) -> Result<bool> {
 }
 
 /// Every chart of a run into `dir` (SVG, and PNG where fonts exist); returns the files written.
-pub fn write_all(dir: &Path, sim: &Simulation, fields: &Fields) -> Result<Vec<PathBuf>> {
+/// The convergence chart (of `sim`'s own flow-rate history) only when `with_convergence`.
+pub fn write_all(
+    dir: &Path,
+    sim: &Simulation,
+    fields: &Fields,
+    with_convergence: bool,
+) -> Result<Vec<PathBuf>> {
     let mut svgs = Vec::new();
-    let p = dir.join("convergence.svg");
-    convergence(&p, sim)?;
-    svgs.push(p);
+    if with_convergence {
+        let p = dir.join("convergence.svg");
+        convergence(&p, sim)?;
+        svgs.push(p);
+    }
     for (file, values, title, units, log) in [
         (
             "number_density.svg",

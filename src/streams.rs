@@ -28,6 +28,12 @@ fn mix(mut x: u64) -> u64 {
     x ^ (x >> 31)
 }
 
+/// Stream seed of statistical replica `k` (1-based) of a case with seed `seed`: a different
+/// bijective mix than the per-step keys, so replica streams do not overlap any other run's.
+pub fn replica_seed(seed: u64, k: u64) -> u64 {
+    mix(mix(seed ^ 0x5245_504C_4943_4100) ^ k)
+}
+
 /// The generator for one work unit.
 #[inline]
 pub fn stream(seed: u64, step: u64, stage: Stage, index: u64) -> SmallRng {

@@ -10,7 +10,8 @@
 
 use crate::analytic::Estimate;
 use crate::constants::AVOGADRO;
-use crate::monitor::{batch_means, StopReason};
+use crate::flux::FluxHistory;
+use crate::monitor::{pooled_batch_means, StopReason};
 use crate::numerics::Choices;
 use crate::simulation::{Balance, RunOutcome, Simulation};
 use crate::units::TradeFlow;
@@ -98,6 +99,10 @@ pub struct RunSummary {
     pub batch_length_steps: usize,
     pub balance: Balance,
     pub seed: u64,
+    /// "K/N" when this run is statistical replica K of N (`kinflux run --replica`).
+    pub replica: Option<String>,
+    /// Number of replicas pooled into this result (`kinflux merge`); absent for a single run.
+    pub replicas_merged: Option<usize>,
     /// Wall time per stage of the step, s.
     pub stage_times: crate::simulation::StageTimes,
 }
@@ -182,29 +187,53 @@ pub struct Summary {
     pub caution: &'static str,
 }
 
+/// Pooled estimate of the per-step series of several histories (each from its steady-state
+/// step), per second; a plain mean with an unknown (infinite) interval when there are too few
+/// steps for batches. Returns (mean, 95 % half-width, batch length).
+fn rate(
+    parts: &[(&FluxHistory, usize)],
+    dt: f64,
+    pick: impl Fn(&FluxHistory) -> &[f64],
+) -> (f64, f64, usize) {
+    let series: Vec<&[f64]> = parts.iter().map(|(f, s)| &pick(f)[*s..]).collect();
+    match pooled_batch_means(&series) {
+        Some(e) => (e.mean / dt, e.half_width / dt, e.batch_len),
+        None => {
+            let n: usize = series.iter().map(|s| s.len()).sum();
+            let sum: f64 = series.iter().map(|s| s.iter().sum::<f64>()).sum();
+            let mean = if n == 0 { 0.0 } else { sum / n as f64 / dt };
+            (mean, f64::INFINITY, 0)
+        }
+    }
+}
+
 impl Summary {
     /// Build the summary of a finished (or interrupted) simulation.
     pub fn new(sim: &Simulation, outcome: &RunOutcome, threads: usize) -> Summary {
+        Summary::pooled(
+            sim,
+            &[(&sim.flux, sim.steady_state_step())],
+            outcome,
+            threads,
+        )
+    }
+
+    /// Build a summary whose flow rates pool the steady parts of several flow histories
+    /// (`(history, steady-state step)`, one per statistical replica of the case); everything
+    /// else (fields, profiles, counters) comes from `sim`, which holds the summed samples.
+    pub fn pooled(
+        sim: &Simulation,
+        parts: &[(&FluxHistory, usize)],
+        outcome: &RunOutcome,
+        threads: usize,
+    ) -> Summary {
         let plan = &sim.plan;
         let case = &plan.case;
         let est: &Estimate = &plan.estimate;
         let dt = plan.dt;
-        let start = sim.steady_state_step();
-        let sampled = sim.flux.steps() - start;
-        let mass = sim.mass_flow_estimate();
-        let (mdot, mdot_ci, batch_len) = match mass {
-            Some(e) => (e.mean, e.half_width, e.batch_len),
-            None => {
-                // Too few steps for batches: plain mean, interval unknown.
-                let s = &sim.flux.mass_per_step[start..];
-                let mean = if s.is_empty() {
-                    0.0
-                } else {
-                    s.iter().sum::<f64>() / s.len() as f64 / dt
-                };
-                (mean, f64::INFINITY, 0)
-            }
-        };
+        let start = parts[0].1;
+        let sampled: usize = parts.iter().map(|(f, s)| f.steps() - s).sum();
+        let (mdot, mdot_ci, batch_len) = rate(parts, dt, |f| &f.mass_per_step);
         let fm = est.free_molecular_mass_flow;
         let mut molecules_total = 0.0;
         let species: Vec<SpeciesFlow> = case
@@ -213,18 +242,7 @@ impl Summary {
             .iter()
             .enumerate()
             .map(|(s, c)| {
-                let series = &sim.flux.molecules_per_step[s][start..];
-                let (n, n_ci) = match batch_means(series) {
-                    Some(e) => (e.mean / dt, e.half_width / dt),
-                    None => {
-                        let mean = if series.is_empty() {
-                            0.0
-                        } else {
-                            series.iter().sum::<f64>() / series.len() as f64 / dt
-                        };
-                        (mean, f64::INFINITY)
-                    }
-                };
+                let (n, n_ci, _) = rate(parts, dt, |f| &f.molecules_per_step[s]);
                 molecules_total += n;
                 let fm_s = crate::analytic::effusion_molecule_flow(
                     &case.gas,
@@ -314,10 +332,15 @@ impl Summary {
                 stop_reason: outcome.stop,
                 stop_reason_text: outcome.stop.describe(),
                 molecules_at_end: sim.population(),
-                aperture_crossing_events: sim.flux.events_per_step[start..].iter().sum(),
+                aperture_crossing_events: parts
+                    .iter()
+                    .map(|(f, s)| f.events_per_step[*s..].iter().sum::<u64>())
+                    .sum(),
                 batch_length_steps: batch_len,
                 balance: sim.balance,
                 seed: case.solver.seed,
+                replica: (case.solver.replica.count > 1).then(|| case.solver.replica.label()),
+                replicas_merged: (parts.len() > 1).then_some(parts.len()),
                 stage_times: sim.times,
             },
             caution: CAUTION,
