@@ -23,6 +23,9 @@ pub enum Error {
         #[source]
         source: std::io::Error,
     },
+    /// Another program the task needs failed (e.g. Slurm's sbatch). Exit code 1.
+    #[error("{0}")]
+    External(String),
     /// The run was stopped by a signal (SIGINT/SIGTERM) after saving what it had.
     #[error("run interrupted by a signal")]
     Interrupted,

@@ -35,8 +35,10 @@ pub mod reservoir;
 pub mod runner;
 pub mod sample;
 pub mod simulation;
+pub mod sizing;
 pub mod streams;
 pub mod summary;
+pub mod sweep;
 pub mod units;
 pub mod weights;
 

@@ -64,6 +64,37 @@ enum Command {
         #[arg(long)]
         force: bool,
     },
+    /// Parameter sweeps: plan the cases, run them here or as a Slurm job array, collect.
+    Sweep {
+        #[command(subcommand)]
+        action: SweepAction,
+    },
+    /// Find the aperture diameter that delivers a target flow at the case's pressures and gas.
+    Size {
+        /// Case file (TOML); its aperture diameter is the starting guess's scale.
+        case: PathBuf,
+        /// Target flow with its unit: sccm, slm, kg/s, g/s, mol/s, Pa·m3/s, mbar·L/s, Torr·L/s.
+        #[arg(long, value_name = "FLOW")]
+        target_flow: String,
+        /// Override a case value (repeatable).
+        #[arg(long = "set", value_name = "KEY=VALUE")]
+        set: Vec<String>,
+        /// Directory for the sizing runs (default: runs/<case name>-sizing).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Most DSMC runs to make.
+        #[arg(long, default_value_t = 8)]
+        max_runs: usize,
+        /// Worker threads (default: all cores).
+        #[arg(long)]
+        threads: Option<usize>,
+        /// Overwrite a sizing directory that already holds runs.
+        #[arg(long)]
+        force: bool,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
     /// Validate a case and print the derived regime and numerics without running.
     Check {
         /// Case file (TOML).
@@ -93,6 +124,78 @@ enum Command {
         /// Print JSON instead of text.
         #[arg(long)]
         json: bool,
+    },
+}
+
+#[derive(Subcommand)]
+enum SweepAction {
+    /// Read a sweep file, check every case, write the plan directory.
+    Plan {
+        /// Sweep file (TOML): base case and axes.
+        sweep: PathBuf,
+        /// Plan directory to create.
+        #[arg(long)]
+        out: PathBuf,
+        /// Overwrite a plan directory that is not empty.
+        #[arg(long)]
+        force: bool,
+    },
+    /// Run the plan's unfinished tasks on this machine (finished ones are skipped, interrupted
+    /// ones resume).
+    Run {
+        /// Plan directory.
+        plan: PathBuf,
+        /// Cases at once (default: all cores when every case is small, else 1).
+        #[arg(long)]
+        jobs: Option<usize>,
+        /// Threads in all (default: all cores).
+        #[arg(long)]
+        threads: Option<usize>,
+    },
+    /// Run one task of the plan (a Slurm array task runs this with its index).
+    Task {
+        /// Plan directory.
+        plan: PathBuf,
+        /// Task index (0-based; tasks.csv).
+        #[arg(long)]
+        index: usize,
+        /// Worker threads (default: all cores).
+        #[arg(long)]
+        threads: Option<usize>,
+    },
+    /// Write the plan's sbatch job-array script (and submit it with --submit).
+    Slurm {
+        /// Plan directory.
+        plan: PathBuf,
+        /// Slurm partition(s).
+        #[arg(long)]
+        partition: Option<String>,
+        /// Time limit per array task (e.g. 30, 1:00:00, 2-00:00:00).
+        #[arg(long)]
+        time: Option<String>,
+        /// CPUs per array task (also the task's thread count).
+        #[arg(long)]
+        cpus_per_task: Option<u32>,
+        /// Memory per array task's node (e.g. 4G).
+        #[arg(long)]
+        mem: Option<String>,
+        /// Account to charge.
+        #[arg(long)]
+        account: Option<String>,
+        /// At most this many array tasks at once.
+        #[arg(long)]
+        max_parallel: Option<u32>,
+        /// The kinflux binary the cluster nodes run (default: this one).
+        #[arg(long)]
+        kinflux: Option<PathBuf>,
+        /// Submit the script with sbatch after writing it.
+        #[arg(long)]
+        submit: bool,
+    },
+    /// Gather every case into results.csv and results.h5 and draw the design charts.
+    Collect {
+        /// Plan directory.
+        plan: PathBuf,
     },
 }
 
@@ -128,12 +231,39 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
     {
         return cmd_run(&case, out, &set, threads, force, quiet, resume, replica);
     }
+    if let Command::Sweep { action } = cli.command {
+        return cmd_sweep(action);
+    }
+    if let Command::Size {
+        case,
+        target_flow,
+        set,
+        out,
+        max_runs,
+        threads,
+        force,
+        json,
+    } = cli.command
+    {
+        return cmd_size(
+            &case,
+            &target_flow,
+            &set,
+            out,
+            max_runs,
+            threads,
+            force,
+            json,
+        );
+    }
     other(cli.command).map(|()| ExitCode::SUCCESS)
 }
 
 fn other(command: Command) -> anyhow::Result<()> {
     match command {
-        Command::Run { .. } => unreachable!("handled by run"),
+        Command::Run { .. } | Command::Sweep { .. } | Command::Size { .. } => {
+            unreachable!("handled by run")
+        }
         Command::Merge { dirs, out, force } => {
             let m = kinflux::ensemble::merge(&dirs, &out, force)?;
             println!("merged {} replicas", dirs.len());
@@ -376,6 +506,207 @@ pub(crate) fn run_one(mut req: runner::Request, quiet: bool) -> anyhow::Result<E
         return Ok(ExitCode::from(EXIT_INTERRUPTED));
     }
     Ok(ExitCode::SUCCESS)
+}
+
+fn cmd_sweep(action: SweepAction) -> anyhow::Result<ExitCode> {
+    use kinflux::sweep::{collect, local, plan, slurm, task};
+    match action {
+        SweepAction::Plan { sweep, out, force } => {
+            let p = plan::write(&sweep, &out, force)?;
+            println!(
+                "plan in {}: {} cases, {} tasks",
+                out.display(),
+                p.cases.len(),
+                p.tasks.len()
+            );
+            println!("  manifest {}", out.join(plan::MANIFEST_FILE).display());
+            println!(
+                "next: kinflux sweep run {0}   (this machine)  or  kinflux sweep slurm {0} --submit",
+                out.display()
+            );
+            Ok(ExitCode::SUCCESS)
+        }
+        SweepAction::Run {
+            plan,
+            jobs,
+            threads,
+        } => {
+            if jobs == Some(0) || threads == Some(0) {
+                return Err(kinflux::Error::Input(
+                    "--jobs/--threads 0: expected at least 1".into(),
+                )
+                .into());
+            }
+            eprintln!("caution: {}", kinflux::summary::CAUTION);
+            let r = local::run_all(&plan, jobs, threads, Some(interrupt_flag()), |line| {
+                println!("{line}")
+            })?;
+            println!(
+                "{} run, {} already finished, {} interrupted, {} failed ({} at once, {} thread(s) each)",
+                r.ran,
+                r.already_finished,
+                r.interrupted,
+                r.failed.len(),
+                r.jobs,
+                r.threads_per_job
+            );
+            if r.interrupted > 0 || interrupt_flag().load(Ordering::SeqCst) {
+                eprintln!(
+                    "kinflux: interrupted; run `kinflux sweep run {}` again to continue",
+                    plan.display()
+                );
+                return Ok(ExitCode::from(EXIT_INTERRUPTED));
+            }
+            if !r.failed.is_empty() {
+                return Ok(ExitCode::from(1));
+            }
+            println!("next: kinflux sweep collect {}", plan.display());
+            Ok(ExitCode::SUCCESS)
+        }
+        SweepAction::Task {
+            plan,
+            index,
+            threads,
+        } => {
+            let p = plan::Plan::load(&plan)?;
+            let t = p.task(index)?;
+            let started = std::time::Instant::now();
+            let o = task::run_task(&plan, &p, t, threads, Some(interrupt_flag()))?;
+            println!(
+                "{}",
+                task::describe(&p, t, &o, started.elapsed().as_secs_f64())
+            );
+            match o {
+                task::TaskOutcome::Ran(f)
+                    if f.stop == kinflux::monitor::StopReason::Interrupted =>
+                {
+                    Ok(ExitCode::from(EXIT_INTERRUPTED))
+                }
+                _ => Ok(ExitCode::SUCCESS),
+            }
+        }
+        SweepAction::Slurm {
+            plan,
+            partition,
+            time,
+            cpus_per_task,
+            mem,
+            account,
+            max_parallel,
+            kinflux,
+            submit,
+        } => {
+            let bin = match kinflux {
+                Some(b) => std::path::absolute(&b)?,
+                None => std::env::current_exe()?,
+            };
+            let opts = slurm::JobOptions {
+                partition,
+                time,
+                cpus_per_task,
+                mem,
+                max_parallel,
+                account,
+            };
+            let path = slurm::write(&plan, &bin, &opts)?;
+            println!("wrote {}", path.display());
+            if submit {
+                let id = slurm::submit(&plan)?;
+                println!("submitted job array {id}");
+                println!(
+                    "when it has finished: kinflux sweep collect {}",
+                    plan.display()
+                );
+            } else {
+                println!(
+                    "submit with: cd {} && sbatch {}",
+                    plan.display(),
+                    slurm::SCRIPT_FILE
+                );
+            }
+            Ok(ExitCode::SUCCESS)
+        }
+        SweepAction::Collect { plan } => {
+            let c = collect::collect(&plan)?;
+            let ok = c
+                .rows
+                .iter()
+                .filter(|r| r.status == collect::Status::Ok)
+                .count();
+            println!("collected {ok} of {} cases", c.rows.len());
+            for line in c.incomplete() {
+                println!("  not complete: {line}");
+            }
+            for f in &c.files {
+                println!("wrote {}", f.display());
+            }
+            for w in &c.warnings {
+                eprintln!("kinflux: warning: {w}");
+            }
+            Ok(ExitCode::SUCCESS)
+        }
+    }
+}
+
+#[allow(clippy::too_many_arguments)]
+fn cmd_size(
+    case: &Path,
+    target_flow: &str,
+    set: &[String],
+    out: Option<PathBuf>,
+    max_runs: usize,
+    threads: Option<usize>,
+    force: bool,
+    json: bool,
+) -> anyhow::Result<ExitCode> {
+    let req = kinflux::sizing::SizingRequest {
+        case_file: case.to_path_buf(),
+        overrides: set.to_vec(),
+        target: target_flow.to_string(),
+        out: out.unwrap_or_else(|| kinflux::sizing::default_dir(case)),
+        max_runs,
+        threads,
+        force,
+        interrupt: Some(interrupt_flag()),
+    };
+    if !json {
+        eprintln!("caution: {}", kinflux::summary::CAUTION);
+    }
+    let r = kinflux::sizing::size(&req, |line| {
+        if !json {
+            eprintln!("{line}");
+        }
+    })?;
+    if json {
+        println!("{}", serde_json::to_string_pretty(&r)?);
+    } else {
+        println!(
+            "aperture diameter for {}: {:.6e} m ± {:.2e} m (95 %){}",
+            r.target_flow,
+            r.diameter_m,
+            r.diameter_ci95_m,
+            if r.converged {
+                String::new()
+            } else {
+                format!(
+                    "; NOT converged in {} runs (last run's diameter shown)",
+                    r.runs.len()
+                )
+            }
+        );
+        println!(
+            "analytic free-molecular start {:.6e} m; partition thickness {:.3e} m kept; {} DSMC run(s)",
+            r.analytic_start_diameter_m,
+            r.partition_thickness_m,
+            r.runs.len()
+        );
+        println!("wrote {}", req.out.join("sizing.json").display());
+    }
+    Ok(if r.converged {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(1)
+    })
 }
 
 #[allow(clippy::too_many_arguments)]

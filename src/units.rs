@@ -26,7 +26,7 @@ impl Dimension {
             Dimension::Temperature => "a temperature with a unit (K, °C or degC), e.g. \"295 K\"",
             Dimension::Length => "a length with a unit (m, cm, mm, µm or um, nm, in), e.g. \"0.2 mm\"",
             Dimension::Time => "a time with a unit (µs, ms, s, min, h), e.g. \"10 min\"",
-            Dimension::Flow => "a flow with a unit (kg/s, g/s, mg/s, sccm, slm, Pa·m3/s, mbar·L/s, Torr·L/s), e.g. \"5 sccm\"",
+            Dimension::Flow => "a flow with a unit (kg/s, g/s, mg/s, mol/s, sccm, slm, Pa·m3/s, mbar·L/s, Torr·L/s), e.g. \"5 sccm\"",
         }
     }
 }
@@ -83,6 +83,7 @@ pub fn parse_flow(text: &str, gas_temperature: f64) -> Result<Flow, String> {
         "kg/s" => Flow::Mass(number),
         "g/s" => Flow::Mass(number * 1e-3),
         "mg/s" => Flow::Mass(number * 1e-6),
+        "mol/s" => Flow::Molecules(number * crate::constants::AVOGADRO),
         "sccm" => Flow::Molecules(number * 1e-6 / 60.0 * std_molecules_per_m3),
         "slm" | "slpm" => Flow::Molecules(number * 1e-3 / 60.0 * std_molecules_per_m3),
         "pam3/s" | "pam^3/s" | "pa.m3/s" => {
