@@ -13,4 +13,6 @@ mod free_molecular;
 mod gas;
 mod invariants;
 mod maxwell;
+mod slurm;
+mod sweeps;
 mod transition;

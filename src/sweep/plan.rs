@@ -141,6 +141,22 @@ fn number_and_unit(v: &Value) -> Option<(f64, String)> {
     }
 }
 
+/// `x` in unit `from` expressed in unit `to`, when both are units of one proportional quantity
+/// (pressure, length, time; temperatures have offsets and must use one unit).
+fn convert(x: f64, from: &str, to: &str) -> Option<f64> {
+    use crate::units::{parse, Dimension};
+    if from.is_empty() || to.is_empty() {
+        return None;
+    }
+    [Dimension::Pressure, Dimension::Length, Dimension::Time]
+        .into_iter()
+        .find_map(|d| {
+            let a = parse(&format!("{x} {from}"), d).ok()?;
+            let b = parse(&format!("1 {to}"), d).ok()?;
+            Some(a / b)
+        })
+}
+
 /// Six significant digits, without trailing zeros (1, 2.5, 3.16228e-5).
 fn short_number(x: f64) -> String {
     if x != 0.0 && (x.abs() >= 1e6 || x.abs() < 1e-3) {
@@ -194,17 +210,26 @@ fn axis_values(file: &str, key: &str, v: &Value) -> Result<Vec<Value>> {
                 .ok_or_else(|| err(file, &format!("{name}.from"), &from_v.to_string(), quantity))?;
             let (to, unit_to) = number_and_unit(to_v)
                 .ok_or_else(|| err(file, &format!("{name}.to"), &to_v.to_string(), quantity))?;
-            if unit != unit_to {
-                return Err(err(
-                    file,
-                    &format!("{name}.to"),
-                    &to_v.to_string(),
-                    &format!(
-                        "the same unit as `from` ({})",
-                        if unit.is_empty() { "none" } else { &unit }
-                    ),
-                ));
-            }
+            let to = if unit == unit_to {
+                to
+            } else {
+                // "1 Pa" to "1 kPa": the range is written in `from`'s unit
+                convert(to, &unit_to, &unit).ok_or_else(|| {
+                    err(
+                        file,
+                        &format!("{name}.to"),
+                        &to_v.to_string(),
+                        &format!(
+                            "a value in the same quantity as `from` ({})",
+                            if unit.is_empty() {
+                                "a bare number"
+                            } else {
+                                &unit
+                            }
+                        ),
+                    )
+                })?
+            };
             let n = match n_v {
                 Value::Integer(n) if *n >= 1 && *n <= 100_000 => *n as usize,
                 _ => {
@@ -724,6 +749,14 @@ mod tests {
         assert_eq!(z.len(), 6);
         assert!(z.iter().all(|pt| pt[1].1 == pt[2].1));
         assert_eq!(z[4], vec![(0, 1), (1, 1), (2, 1)]);
+    }
+
+    #[test]
+    fn ranges_convert_between_units_of_one_quantity() {
+        assert!((convert(1.0, "kPa", "Pa").unwrap() - 1000.0).abs() < 1e-9);
+        assert!((convert(2.0, "mm", "m").unwrap() - 2e-3).abs() < 1e-15);
+        assert_eq!(convert(10.0, "K", "Pa"), None);
+        assert_eq!(convert(10.0, "°C", "K"), None);
     }
 
     #[test]
