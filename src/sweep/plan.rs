@@ -518,7 +518,10 @@ fn points(axes: &[Axis], zip: &[Vec<String>]) -> Vec<Vec<(usize, usize)>> {
 fn value_text(v: &serde_json::Value) -> String {
     match v {
         serde_json::Value::String(s) => s.clone(),
-        other => other.to_string(),
+        // tables as the TOML the user wrote them in ({ Ar = 1.0 })
+        other => toml::Value::try_from(other)
+            .map(|t| t.to_string())
+            .unwrap_or_else(|_| other.to_string()),
     }
 }
 
