@@ -137,6 +137,9 @@ pub fn merge(dirs: &[PathBuf], out: &Path, force: bool) -> Result<Merged> {
         for (a, b) in total.flux.polar_sum.iter_mut().zip(&s.flux.polar_sum) {
             *a += b;
         }
+        for (a, b) in total.flux.polar_sq_sum.iter_mut().zip(&s.flux.polar_sq_sum) {
+            *a += b;
+        }
         total.flux.profile_steps += s.flux.profile_steps;
         let (b, o) = (&mut total.balance, &s.balance);
         b.initial += o.initial;

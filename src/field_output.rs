@@ -4,8 +4,11 @@
 //!
 //! Layout of fields.h5: `/grid/{z_edges, r_edges, z_centers, r_centers}` (m), `/grid/cell_volume`
 //! (m³, nz × nr), `/fields/<name>` (nz × nr, row-major: cell (iz, ir) at iz · nr + ir, NaN where
-//! nothing was sampled), `/fields/species/<gas>_number_density`. In the XDMF file the mesh is a
-//! 2-D rectilinear mesh with x = r and y = z. Invariant: both files are written to temporary
+//! nothing was sampled), `/fields/species/<gas>_number_density`, and the axis profile of the beam
+//! (`beam::axis_profile`, the first radial row of cells, 1-D over nz): `/axis/z` (m),
+//! `/axis/number_density` (1/m³), `/axis/number_density_over_upstream` (1),
+//! `/axis/samples` (1) and `/axis/species/<gas>_mole_fraction` (1). In the XDMF file the mesh is
+//! a 2-D rectilinear mesh with x = r and y = z (the axis group is not part of it). Invariant: both files are written to temporary
 //! names and renamed into place, so a reader never sees a partial file.
 
 use crate::error::{Error, Result};
@@ -135,6 +138,46 @@ fn write_hdf5(path: &Path, plan: &Plan, fields: &Fields, meta: &[(&str, String)]
                 &fields.species_density[s],
                 "1/m^3",
                 "number density of one species",
+            )?;
+        }
+        let axis = crate::beam::axis_profile(plan, fields);
+        let ag = file.create_group("axis").map_err(fail)?;
+        put1(
+            &ag,
+            "z",
+            &axis.z,
+            "m",
+            "axial position of the axis cells (first radial row); exit plane at z = thickness",
+        )?;
+        put1(
+            &ag,
+            "number_density",
+            &axis.number_density,
+            "1/m^3",
+            "number density on the axis",
+        )?;
+        put1(
+            &ag,
+            "number_density_over_upstream",
+            &axis.over_upstream,
+            "1",
+            "number density on the axis over the upstream reservoir's p1/(k T1)",
+        )?;
+        put1(
+            &ag,
+            "samples",
+            &axis.samples,
+            "1",
+            "simulated molecules sampled in each axis cell",
+        )?;
+        let asg = ag.create_group("species").map_err(fail)?;
+        for (s, c) in plan.case.gas.components.iter().enumerate() {
+            put1(
+                &asg,
+                &format!("{}_mole_fraction", c.species.name),
+                &axis.mole_fraction[s],
+                "1",
+                "mole fraction of one species on the axis",
             )?;
         }
         file.close().map_err(fail)?;

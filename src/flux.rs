@@ -4,7 +4,10 @@
 //! crossing of it is counted with sign (+1 downstream, −1 upstream) and the weight the molecule
 //! carries during that flight, per species. Only the open hole is crossable, so the net count
 //! per step is the net number of simulated molecules through the aperture. This module keeps
-//! the per-step series (for the batch-means interval) and converts counts to flow rates.
+//! the per-step series (for the batch-means interval) and converts counts to flow rates. It
+//! also tallies, over the sampling steps, the radial profile of the mass flux and the polar
+//! angles of the molecules leaving downstream (sums of weights and of squared weights, from
+//! which `beam` forms the angular distribution and its statistical error).
 //! Invariant: `steps` equals the length of every per-step series.
 
 /// Radial bins of the aperture mass-flux profile (equal widths in r/a).
@@ -24,6 +27,8 @@ pub struct Crossings {
     pub radial: [f64; RADIAL_BINS],
     /// Weighted molecules leaving downstream per polar-angle bin (per F_N).
     pub polar: [f64; POLAR_BINS],
+    /// Sum of the squared weights per polar-angle bin (for the bins' statistical error).
+    pub polar_sq: [f64; POLAR_BINS],
 }
 
 impl Crossings {
@@ -34,6 +39,7 @@ impl Crossings {
             events: 0,
             radial: [0.0; RADIAL_BINS],
             polar: [0.0; POLAR_BINS],
+            polar_sq: [0.0; POLAR_BINS],
         }
     }
 
@@ -56,6 +62,7 @@ impl Crossings {
             let theta = cos_theta.clamp(0.0, 1.0).acos().to_degrees();
             let pb = ((theta / 5.0) as usize).min(POLAR_BINS - 1);
             self.polar[pb] += weight;
+            self.polar_sq[pb] += weight * weight;
         }
     }
 
@@ -69,6 +76,9 @@ impl Crossings {
             *a += *b;
         }
         for (a, b) in self.polar.iter_mut().zip(&other.polar) {
+            *a += *b;
+        }
+        for (a, b) in self.polar_sq.iter_mut().zip(&other.polar_sq) {
             *a += *b;
         }
     }
@@ -89,6 +99,10 @@ pub struct FluxHistory {
     /// Polar-angle counts of molecules leaving downstream over the sampling steps (per F_N).
     #[serde(default)]
     pub polar_sum: Vec<f64>,
+    /// Squared weights of those molecules per polar bin (per F_N²), for the bins' statistical
+    /// error; NaN in a checkpoint written before it was recorded (the error is then unknown).
+    #[serde(default = "unknown_polar_sq")]
+    pub polar_sq_sum: Vec<f64>,
     /// Steps summed into the profiles.
     #[serde(default)]
     pub profile_steps: u64,
@@ -106,6 +120,7 @@ impl FluxHistory {
             events_per_step: Vec::new(),
             radial_sum: vec![0.0; RADIAL_BINS],
             polar_sum: vec![0.0; POLAR_BINS],
+            polar_sq_sum: vec![0.0; POLAR_BINS],
             profile_steps: 0,
             population_per_step: Vec::new(),
         }
@@ -131,6 +146,9 @@ impl FluxHistory {
         for (a, b) in self.polar_sum.iter_mut().zip(&c.polar) {
             *a += *b;
         }
+        for (a, b) in self.polar_sq_sum.iter_mut().zip(&c.polar_sq) {
+            *a += *b;
+        }
         self.profile_steps += 1;
     }
 
@@ -138,4 +156,9 @@ impl FluxHistory {
     pub fn steps(&self) -> usize {
         self.mass_per_step.len()
     }
+}
+
+/// Serde default of [`FluxHistory::polar_sq_sum`] for older checkpoints: unknown.
+fn unknown_polar_sq() -> Vec<f64> {
+    vec![f64::NAN; POLAR_BINS]
 }

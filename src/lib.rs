@@ -12,6 +12,7 @@
 //! ```
 
 pub mod analytic;
+pub mod beam;
 pub mod bench;
 pub mod case;
 pub mod checkpoint;

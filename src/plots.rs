@@ -1,6 +1,7 @@
-//! Charts of a run as SVG: the convergence history of the flow rate with its 95 % band, and
+//! Charts of a run as SVG: the convergence history of the flow rate with its 95 % band,
 //! colour maps of number density, Mach number and temperature over the (z, r) half-plane with
-//! the partition drawn. Axes are labelled with units. SVG is an open standard that browsers and
+//! the partition drawn, and the beam (angular distribution against the cosine law and the
+//! free-molecular theory; axis density with its far-field fit). Axes are labelled with units. SVG is an open standard that browsers and
 //! reports show directly. Invariant: files are written atomically; a chart that cannot be drawn
 //! is reported, never left half-written.
 
@@ -226,6 +227,175 @@ pub fn field_map(
     crate::output::write_atomic(path, svg.as_bytes())
 }
 
+/// The beam chart: left, the angular distribution of the molecules leaving the aperture over
+/// the cosine law of a thin orifice of the same throughput, with 95 % bars, the cosine law
+/// itself and Clausing's free-molecular theory for the aperture; right, the axis number density
+/// over the upstream density against the distance beyond the exit plane (log–log), with the
+/// far-field power-law fit and the collisionless thin-orifice curve (1 − d/sqrt(d² + a²))/2.
+pub fn beam_chart(path: &Path, sim: &Simulation, fields: &Fields) -> Result<()> {
+    let plan = &sim.plan;
+    let ang = crate::beam::angular_of_run(plan, &sim.flux);
+    let (theory, _) = crate::beam::free_molecular_reference(plan);
+    let axis = crate::beam::axis_profile(plan, fields);
+    let far = crate::beam::far_field(plan, &axis);
+    let a = plan.case.aperture.radius();
+    let t = plan.case.aperture.thickness;
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (1200, 520)).into_drawing_area();
+        root.fill(&WHITE).map_err(|e| fail(path, e))?;
+        let (left, right) = root.split_horizontally(600);
+        // Angular distribution.
+        let top = ang
+            .over_cosine_law
+            .iter()
+            .zip(&ang.over_cosine_law_ci95)
+            .map(|(r, c)| r + if c.is_finite() { *c } else { 0.0 })
+            .chain(theory.iter().copied())
+            .filter(|v| v.is_finite())
+            .fold(1.2f64, f64::max)
+            .min(20.0)
+            * 1.1;
+        let mut c = ChartBuilder::on(&left)
+            .caption(
+                "Angular distribution of the molecules leaving the aperture",
+                ("sans-serif", 18),
+            )
+            .margin(12)
+            .x_label_area_size(45)
+            .y_label_area_size(60)
+            .build_cartesian_2d(0.0..90.0, 0.0..top)
+            .map_err(|e| fail(path, e))?;
+        c.configure_mesh()
+            .x_desc("polar angle from the axis (degrees)")
+            .y_desc("intensity / cosine law of the same throughput")
+            .draw()
+            .map_err(|e| fail(path, e))?;
+        c.draw_series(LineSeries::new(
+            [(0.0, 1.0), (90.0, 1.0)],
+            BLACK.mix(0.5).stroke_width(1),
+        ))
+        .map_err(|e| fail(path, e))?
+        .label("cosine law (thin orifice, Knudsen)")
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.mix(0.5)));
+        c.draw_series(LineSeries::new(
+            ang.theta_deg.iter().zip(&theory).map(|(x, y)| (*x, *y)),
+            RED.stroke_width(2),
+        ))
+        .map_err(|e| fail(path, e))?
+        .label("free-molecular theory (Clausing), bin averages")
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], RED.stroke_width(2)));
+        let points: Vec<(f64, f64, f64)> = ang
+            .theta_deg
+            .iter()
+            .zip(&ang.over_cosine_law)
+            .zip(&ang.over_cosine_law_ci95)
+            .filter(|((_, r), _)| r.is_finite())
+            .map(|((x, r), ci)| (*x, *r, if ci.is_finite() { *ci } else { 0.0 }))
+            .collect();
+        c.draw_series(points.iter().map(|&(x, r, ci)| {
+            PathElement::new(vec![(x, (r - ci).max(0.0)), (x, (r + ci).min(top))], BLUE)
+        }))
+        .map_err(|e| fail(path, e))?;
+        c.draw_series(
+            points
+                .iter()
+                .map(|&(x, r, _)| Circle::new((x, r), 4, BLUE.filled())),
+        )
+        .map_err(|e| fail(path, e))?
+        .label("simulation, 95 % bars")
+        .legend(|(x, y)| Circle::new((x + 10, y), 4, BLUE.filled()));
+        c.configure_series_labels()
+            .background_style(WHITE.mix(0.8))
+            .border_style(BLACK)
+            .position(SeriesLabelPosition::UpperRight)
+            .draw()
+            .map_err(|e| fail(path, e))?;
+        // Axis density, log–log.
+        let pts: Vec<(f64, f64)> = axis
+            .z
+            .iter()
+            .zip(&axis.over_upstream)
+            .filter(|(z, n)| **z > t && n.is_finite() && **n > 0.0)
+            .map(|(z, n)| ((z - t) / a, *n))
+            .collect();
+        let (x0, x1) = pts.iter().fold((f64::INFINITY, 0.0f64), |(l, h), p| {
+            (l.min(p.0), h.max(p.0))
+        });
+        let (y0, y1) = pts.iter().fold((f64::INFINITY, 0.0f64), |(l, h), p| {
+            (l.min(p.1), h.max(p.1))
+        });
+        let (x0, x1) = if x0.is_finite() && x1 > x0 {
+            (x0, x1)
+        } else {
+            (0.1, 10.0)
+        };
+        let (y0, y1) = if y0.is_finite() && y1 > y0 {
+            (y0 / 2.0, y1 * 2.0)
+        } else {
+            (1e-4, 1.0)
+        };
+        let mut c = ChartBuilder::on(&right)
+            .caption("Number density on the axis", ("sans-serif", 18))
+            .margin(12)
+            .x_label_area_size(45)
+            .y_label_area_size(70)
+            .build_cartesian_2d((x0..x1).log_scale(), (y0..y1).log_scale())
+            .map_err(|e| fail(path, e))?;
+        c.configure_mesh()
+            .x_desc("distance beyond the exit plane / aperture radius")
+            .y_desc("n / n1 (upstream)")
+            .y_label_formatter(&|y| format!("{y:.1e}"))
+            .draw()
+            .map_err(|e| fail(path, e))?;
+        let curve: Vec<(f64, f64)> = (0..=100)
+            .map(|k| {
+                let d = x0 * (x1 / x0).powf(k as f64 / 100.0);
+                (d, 0.5 * (1.0 - d / (d * d + 1.0).sqrt()))
+            })
+            .collect();
+        c.draw_series(LineSeries::new(curve, BLACK.mix(0.5)))
+            .map_err(|e| fail(path, e))?
+            .label("collisionless thin orifice")
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.mix(0.5)));
+        if let Some(f) = &far {
+            // The fit through the window's geometric means, drawn over the window.
+            let (d0, d1) = (f.from_m / a, f.to_m / a);
+            let inside: Vec<(f64, f64)> = pts
+                .iter()
+                .filter(|p| p.0 >= d0 * (1.0 - 1e-9) && p.0 <= d1 * (1.0 + 1e-9))
+                .copied()
+                .collect();
+            let k = inside.len().max(1) as f64;
+            let mx = inside.iter().map(|p| p.0.ln()).sum::<f64>() / k;
+            let my = inside.iter().map(|p| p.1.ln()).sum::<f64>() / k;
+            let line = |d: f64| (my - f.exponent * (d.ln() - mx)).exp();
+            c.draw_series(LineSeries::new(
+                [(d0, line(d0)), (d1, line(d1))],
+                RED.stroke_width(2),
+            ))
+            .map_err(|e| fail(path, e))?
+            .label(format!(
+                "far-field fit n ∝ d^-{:.2}, C = {:.3}",
+                f.exponent, f.inverse_square_coefficient
+            ))
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], RED.stroke_width(2)));
+        }
+        c.draw_series(pts.iter().map(|&p| Circle::new(p, 3, BLUE.filled())))
+            .map_err(|e| fail(path, e))?
+            .label("simulation (axis cells)")
+            .legend(|(x, y)| Circle::new((x + 10, y), 3, BLUE.filled()));
+        c.configure_series_labels()
+            .background_style(WHITE.mix(0.8))
+            .border_style(BLACK)
+            .position(SeriesLabelPosition::UpperRight)
+            .draw()
+            .map_err(|e| fail(path, e))?;
+        root.present().map_err(|e| fail(path, e))?;
+    }
+    crate::output::write_atomic(path, svg.as_bytes())
+}
+
 /// Rasterise an SVG chart to PNG (resvg; text with the system's fonts). Returns false, writing
 /// nothing, when the machine has no font to draw the labels with.
 pub fn svg_to_png(svg_path: &Path, png_path: &Path) -> Result<bool> {
@@ -285,6 +455,9 @@ pub fn write_all(
         convergence(&p, sim)?;
         svgs.push(p);
     }
+    let p = dir.join("beam.svg");
+    beam_chart(&p, sim, fields)?;
+    svgs.push(p);
     for (file, values, title, units, log) in [
         (
             "number_density.svg",

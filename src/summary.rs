@@ -6,7 +6,10 @@
 //! `flow.mass_flow_rate_ci95_kg_s`, `flow.reduced_flow_rate`, `flow.reduced_flow_rate_ci95`,
 //! `flow.species[]`, `flow.throughput_pa_m3_s`, `flow.throughput_sccm`, `flow.conductance_l_s`,
 //! `regime.rarefaction_parameter`, `regime.knudsen_number`, `run.steps`, `run.wall_time_s`,
-//! `run.particle_steps_per_s`. Add keys freely; never rename or remove one.
+//! `run.particle_steps_per_s`, `plume.*` (angular distribution of the molecules leaving the
+//! aperture, centreline intensity, peaking factor, with the free-molecular theory beside them)
+//! and `beam.*` (downstream axis density, its far-field fit, axis composition of mixtures). Add
+//! keys freely; never rename or remove one.
 
 use crate::analytic::Estimate;
 use crate::constants::AVOGADRO;
@@ -143,16 +146,87 @@ pub struct ApertureProfile {
     pub relative_to_mean: Vec<f64>,
 }
 
-/// Angular distribution of the molecules leaving the aperture downstream.
+/// Angular distribution of the molecules leaving the aperture downstream (crossings of the exit
+/// plane in the +z direction over the sampling steps; see `beam`).
 #[derive(Debug, Clone, Serialize)]
 pub struct AngularDistribution {
     /// Polar-angle bin centres from the axis, degrees (bins of 5°).
     pub theta_deg: Vec<f64>,
     /// Fraction of the downstream-leaving molecules in each bin over the cosine-law fraction
-    /// sin²θ_hi − sin²θ_lo (1 everywhere for Knudsen's cosine law of effusion).
+    /// sin²θ_hi − sin²θ_lo (1 everywhere for Knudsen's cosine law of effusion): the intensity
+    /// over that of an ideal thin orifice of the same throughput.
     pub flux_per_solid_angle_over_cosine_law: Vec<f64>,
     /// Molecules (real) leaving downstream per second, the normalisation.
     pub molecules_per_s: f64,
+    /// 95 % half-width of each bin's ratio (Poisson statistics of the weighted crossings; a
+    /// lower bound with collisions, exact without).
+    pub flux_per_solid_angle_over_cosine_law_ci95: Vec<f64>,
+    /// Half-angle of the cone about the axis over which the centreline intensity is averaged
+    /// (the first bin), degrees.
+    pub centreline_cone_deg: f64,
+    /// Centreline intensity: molecules per second per steradian, mean over the cone.
+    pub centreline_intensity_per_s_sr: f64,
+    pub centreline_intensity_ci95_per_s_sr: f64,
+    /// Centreline intensity over Ṅ/π, the value of an ideal thin orifice of the same throughput
+    /// (the first bin's ratio to the cosine law, weighted per solid angle).
+    pub peaking_factor: f64,
+    pub peaking_factor_ci95: f64,
+    /// Free-molecular reference (diffuse walls, vacuum downstream): Clausing's angular
+    /// distribution of a tube of the aperture's thickness/radius averaged over each bin
+    /// (`analytic::TubeBeam`; 1 everywhere for a thin orifice). Its first bin is the reference
+    /// of `peaking_factor`.
+    pub free_molecular_over_cosine_law: Vec<f64>,
+    /// Free-molecular centreline peaking factor exactly on the axis, 1/W (W the Clausing
+    /// factor); larger than the first bin's mean for a tube, whose intensity falls off within
+    /// the cone.
+    pub free_molecular_peaking_factor: f64,
+}
+
+/// The beam downstream of the aperture, from the sampled fields: number density along the
+/// axis (first radial row of cells), its far-field decay and, for mixtures, the composition on
+/// the axis. Arrays are empty and the fit `None` when no field was sampled.
+#[derive(Debug, Clone, Serialize)]
+pub struct BeamSummary {
+    /// Distance of each downstream axis cell centre beyond the exit plane (z − thickness), m.
+    pub axis_distance_from_exit_plane_m: Vec<f64>,
+    /// Number density in those cells, 1/m³ (null where nothing was sampled).
+    pub axis_number_density_per_m3: Vec<f64>,
+    /// The same over the upstream reservoir's p1/(k T1).
+    pub axis_number_density_over_upstream: Vec<f64>,
+    /// Lightest species of a mixture (`None` for a pure gas) and its mole fraction in those
+    /// cells.
+    pub light_species: Option<String>,
+    pub axis_light_mole_fraction: Option<Vec<f64>>,
+    /// Lightest species' share of the molecule flow through the aperture over its upstream
+    /// mole fraction (the enrichment of the beam's flux; Graham's law in free-molecular flow).
+    pub aperture_light_enrichment: Option<f64>,
+    /// Far-field window and fit; `None` when the domain ends before the window holds enough
+    /// cells (it starts `beam::FAR_FIELD_START_DIAMETERS` = 2 diameters beyond the exit plane).
+    pub far_field: Option<FarFieldSummary>,
+}
+
+/// Far-field fit of the axis density (see `beam::far_field`).
+#[derive(Debug, Clone, Serialize)]
+pub struct FarFieldSummary {
+    /// Window: first and last cell centre beyond the exit plane, m, and the number of cells.
+    pub from_exit_plane_m: f64,
+    pub to_exit_plane_m: f64,
+    pub cells: usize,
+    /// p in n ∝ (z − thickness)^(−p), least squares in log–log (2 for a point source).
+    pub density_decay_exponent: f64,
+    /// Approximate 95 % half-width of p from the fit residuals.
+    pub density_decay_exponent_ci95: f64,
+    /// C in n = C n1 (a/(z − thickness))², fitted in the window (1/4 far from a thin orifice in
+    /// free-molecular flow).
+    pub inverse_square_coefficient: f64,
+    /// Simulated molecules sampled in the window (all steps).
+    pub samples: f64,
+    /// Mole fraction of the lightest species in the window (sample-weighted), its upstream value
+    /// and their ratio, the axis enrichment (1 in free-molecular flow: each species' density is
+    /// its upstream density times the same solid-angle fraction); `None` for a pure gas.
+    pub light_mole_fraction: Option<f64>,
+    pub upstream_light_mole_fraction: Option<f64>,
+    pub light_enrichment: Option<f64>,
 }
 
 /// Extremes of the quality figures over the domain.
@@ -183,6 +257,7 @@ pub struct Summary {
     pub quality: QualityReport,
     pub aperture: ApertureProfile,
     pub plume: AngularDistribution,
+    pub beam: BeamSummary,
     pub run: RunSummary,
     pub caution: &'static str,
 }
@@ -273,6 +348,7 @@ impl Summary {
         let wall = outcome.wall_time.as_secs_f64();
         let quality = quality_report(sim, sampled as u64);
         let (aperture, plume) = profiles(sim, mdot);
+        let beam = beam_summary(sim, &species);
         Summary {
             kinflux_version: env!("CARGO_PKG_VERSION"),
             title: case.title.clone(),
@@ -316,6 +392,7 @@ impl Summary {
             quality,
             aperture,
             plume,
+            beam,
             run: RunSummary {
                 steps: sim.step,
                 startup_steps: plan.startup_steps,
@@ -422,7 +499,7 @@ pub fn quality_report(sim: &Simulation, sampling_steps: u64) -> QualityReport {
 
 /// Aperture radial profile and angular distribution from the sampled crossings.
 fn profiles(sim: &Simulation, mdot: f64) -> (ApertureProfile, AngularDistribution) {
-    use crate::flux::{POLAR_BINS, RADIAL_BINS};
+    use crate::flux::RADIAL_BINS;
     let plan = &sim.plan;
     let f = &sim.flux;
     let a = plan.geometry.radius;
@@ -440,22 +517,8 @@ fn profiles(sim: &Simulation, mdot: f64) -> (ApertureProfile, AngularDistributio
         flux.push(m * plan.fnum / (time * area));
     }
     let relative = flux.iter().map(|x| x / mean).collect();
-    let total: f64 = f.polar_sum.iter().sum();
-    let mut theta = Vec::with_capacity(POLAR_BINS);
-    let mut ratio = Vec::with_capacity(POLAR_BINS);
-    for (k, n) in f.polar_sum.iter().enumerate() {
-        let (lo, hi) = (
-            (5.0 * k as f64).to_radians(),
-            (5.0 * (k + 1) as f64).to_radians(),
-        );
-        theta.push(5.0 * k as f64 + 2.5);
-        let cosine_law = hi.sin().powi(2) - lo.sin().powi(2);
-        ratio.push(if total > 0.0 {
-            n / total / cosine_law
-        } else {
-            f64::NAN
-        });
-    }
+    let ang = crate::beam::angular_of_run(plan, f);
+    let (theory, theory_peak) = crate::beam::free_molecular_reference(plan);
     (
         ApertureProfile {
             r_over_a,
@@ -463,11 +526,66 @@ fn profiles(sim: &Simulation, mdot: f64) -> (ApertureProfile, AngularDistributio
             relative_to_mean: relative,
         },
         AngularDistribution {
-            theta_deg: theta,
-            flux_per_solid_angle_over_cosine_law: ratio,
-            molecules_per_s: total * plan.fnum / time,
+            theta_deg: ang.theta_deg,
+            flux_per_solid_angle_over_cosine_law: ang.over_cosine_law,
+            molecules_per_s: ang.molecules_per_s,
+            flux_per_solid_angle_over_cosine_law_ci95: ang.over_cosine_law_ci95,
+            centreline_cone_deg: crate::beam::POLAR_BIN_DEG,
+            centreline_intensity_per_s_sr: ang.centreline_intensity,
+            centreline_intensity_ci95_per_s_sr: ang.centreline_intensity_ci95,
+            peaking_factor: ang.peaking_factor,
+            peaking_factor_ci95: ang.peaking_factor_ci95,
+            free_molecular_over_cosine_law: theory,
+            free_molecular_peaking_factor: theory_peak,
         },
     )
+}
+
+/// Axis profile, far-field fit and axis composition from the sampled fields.
+fn beam_summary(sim: &Simulation, species: &[SpeciesFlow]) -> BeamSummary {
+    let plan = &sim.plan;
+    let t = plan.case.aperture.thickness;
+    let light = crate::beam::lightest_species(plan);
+    let total: f64 = species.iter().map(|s| s.molecule_flow_rate_per_s).sum();
+    let aperture_light_enrichment = light.map(|s| {
+        species[s].molecule_flow_rate_per_s / total / plan.case.gas.components[s].mole_fraction
+    });
+    let mut b = BeamSummary {
+        axis_distance_from_exit_plane_m: Vec::new(),
+        axis_number_density_per_m3: Vec::new(),
+        axis_number_density_over_upstream: Vec::new(),
+        light_species: light.map(|s| plan.case.gas.components[s].species.name.clone()),
+        axis_light_mole_fraction: light.map(|_| Vec::new()),
+        aperture_light_enrichment,
+        far_field: None,
+    };
+    if sim.fields.steps == 0 {
+        return b;
+    }
+    let fields = sim.fields.fields(plan);
+    let axis = crate::beam::axis_profile(plan, &fields);
+    for i in (0..axis.z.len()).filter(|&i| axis.z[i] > t) {
+        b.axis_distance_from_exit_plane_m.push(axis.z[i] - t);
+        b.axis_number_density_per_m3.push(axis.number_density[i]);
+        b.axis_number_density_over_upstream
+            .push(axis.over_upstream[i]);
+        if let (Some(s), Some(x)) = (light, b.axis_light_mole_fraction.as_mut()) {
+            x.push(axis.mole_fraction[s][i]);
+        }
+    }
+    b.far_field = crate::beam::far_field(plan, &axis).map(|f| FarFieldSummary {
+        from_exit_plane_m: f.from_m,
+        to_exit_plane_m: f.to_m,
+        cells: f.cells,
+        density_decay_exponent: f.exponent,
+        density_decay_exponent_ci95: f.exponent_ci95,
+        inverse_square_coefficient: f.inverse_square_coefficient,
+        samples: f.samples,
+        light_mole_fraction: f.light_species.as_ref().map(|e| e.axis_mole_fraction),
+        upstream_light_mole_fraction: f.light_species.as_ref().map(|e| e.upstream_mole_fraction),
+        light_enrichment: f.light_species.as_ref().map(|e| e.enrichment),
+    });
+    b
 }
 
 /// Quality extremes over the sampled gas cells.

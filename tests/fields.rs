@@ -123,6 +123,38 @@ fn field_files_are_readable_by_an_independent_reader() {
             "fields.xdmf lacks {name}"
         );
     }
+    // the beam's axis profile (group /axis), 1-D over the axial cells
+    for name in [
+        "z",
+        "number_density_over_upstream",
+        "He_mole_fraction",
+        "Ar_mole_fraction",
+    ] {
+        assert!(
+            dump.contains(&format!("DATASET \"{name}\"")),
+            "fields.h5 lacks axis/{name}"
+        );
+    }
+    assert!(dump.contains("GROUP \"axis\""));
+    // the summary carries the plume and beam figures under their contract keys
+    let summary: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("res/summary.json")).unwrap(),
+    )
+    .unwrap();
+    for key in [
+        "/plume/peaking_factor",
+        "/plume/centreline_intensity_per_s_sr",
+        "/plume/flux_per_solid_angle_over_cosine_law_ci95",
+        "/plume/free_molecular_over_cosine_law",
+        "/plume/free_molecular_peaking_factor",
+        "/beam/axis_number_density_per_m3",
+        "/beam/axis_light_mole_fraction",
+        "/beam/aperture_light_enrichment",
+        "/beam/far_field",
+    ] {
+        assert!(summary.pointer(key).is_some(), "summary.json lacks {key}");
+    }
+    assert_eq!(summary["beam"]["light_species"], "He");
     for name in [
         "z_edges",
         "r_edges",
@@ -152,6 +184,7 @@ fn field_files_are_readable_by_an_independent_reader() {
         ("number_density.svg", "z / a"),
         ("mach_number.svg", "r / a"),
         ("temperature.svg", "K"),
+        ("beam.svg", "polar angle from the axis (degrees)"),
     ] {
         let svg = std::fs::read_to_string(dir.path().join("res").join(file))
             .unwrap_or_else(|_| panic!("{file} missing"));
