@@ -862,12 +862,69 @@ impl Estimate {
         radius: f64,
         thickness: f64,
     ) -> Estimate {
-        let area = PI * radius * radius;
+        Estimate::build(
+            mix,
+            (p1, t1, p2, t2),
+            PI * radius * radius,
+            radius,
+            clausing_factor(thickness / radius),
+        )
+    }
+
+    /// The estimate for a slit of `width` (m) in a wall of `thickness` (m), infinitely long:
+    /// flows per metre of slit length, Kn = λ1/width, δ with the half-width (the slit's
+    /// counterpart of the hole radius), and the parallel-plate transmission probability
+    /// [`slit_transmission`] in place of the Clausing factor.
+    pub fn slit(
+        mix: &Mixture,
+        p1: f64,
+        t1: f64,
+        p2: f64,
+        t2: f64,
+        width: f64,
+        thickness: f64,
+    ) -> Estimate {
+        Estimate::build(
+            mix,
+            (p1, t1, p2, t2),
+            width,
+            0.5 * width,
+            slit_transmission(thickness / width),
+        )
+    }
+
+    /// The estimate for the aperture of a case (hole or slit).
+    pub fn for_aperture(
+        mix: &Mixture,
+        p1: f64,
+        t1: f64,
+        p2: f64,
+        t2: f64,
+        aperture: &crate::case::Aperture,
+    ) -> Estimate {
+        match aperture.shape {
+            crate::case::ApertureShape::Circle => {
+                Estimate::new(mix, p1, t1, p2, t2, aperture.radius(), aperture.thickness)
+            }
+            crate::case::ApertureShape::Slit => {
+                Estimate::slit(mix, p1, t1, p2, t2, aperture.diameter, aperture.thickness)
+            }
+        }
+    }
+
+    /// Shared part: `area` is the open area (per metre for a slit), `half` the hole radius or
+    /// slit half-width (Kn uses 2·half, δ uses half), `clausing` the transmission probability.
+    fn build(
+        mix: &Mixture,
+        (p1, t1, p2, t2): (f64, f64, f64, f64),
+        area: f64,
+        radius: f64,
+        clausing: f64,
+    ) -> Estimate {
         let upstream_mean_free_path = mixture_mean_free_path(mix, p1, t1);
         let downstream_mean_free_path = (p2 > 0.0).then(|| mixture_mean_free_path(mix, p2, t2));
         let knudsen_number = upstream_mean_free_path / (2.0 * radius);
         let gamma = mix.gamma();
-        let clausing = clausing_factor(thickness / radius);
         let up = effusion_molecule_flow(mix, p1, t1, area);
         let down = effusion_molecule_flow(mix, p2, t2, area);
         let species_flow: Vec<f64> = up

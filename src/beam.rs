@@ -152,12 +152,20 @@ pub fn angular(
     }
 }
 
-/// The angular figures of a run: its exit-plane tallies over the sampling steps
-/// (axisymmetric geometry: per solid angle).
+/// How intensity is measured for the aperture of `plan`: per solid angle about a hole's axis,
+/// per in-plane angle (and metre) for a slit.
+pub fn measure_of(plan: &Plan) -> AngularMeasure {
+    match plan.geometry.symmetry {
+        crate::geometry::Symmetry::Axisymmetric => AngularMeasure::SolidAngle,
+        crate::geometry::Symmetry::Planar => AngularMeasure::PlaneAngle,
+    }
+}
+
+/// The angular figures of a run: its exit-plane tallies over the sampling steps.
 pub fn angular_of_run(plan: &Plan, flux: &FluxHistory) -> Angular {
     let time = flux.profile_steps.max(1) as f64 * plan.dt;
     angular(
-        AngularMeasure::SolidAngle,
+        measure_of(plan),
         &flux.polar_sum,
         &flux.polar_sq_sum,
         plan.fnum,
@@ -182,13 +190,22 @@ fn relative_error(sum: f64, sum_sq: f64) -> f64 {
     }
 }
 
-/// Free-molecular reference of the angular distribution for the aperture of `plan`: Clausing's
+/// Free-molecular reference of the angular distribution for the aperture of `plan` (a slit: the
+/// in-plane cosine law when thin, NaN for a channel, whose theory is not implemented): Clausing's
 /// tube theory ([`crate::analytic::TubeBeam`]) for thickness/radius, averaged over each polar
 /// bin as the molecules are (a thin orifice gives 1 everywhere), and its exact centreline
 /// peaking factor 1/W. Valid for diffuse walls and a downstream vacuum; shown beside every
 /// result as the Kn → ∞ limit.
 pub fn free_molecular_reference(plan: &Plan) -> (Vec<f64>, f64) {
     let l = plan.case.aperture.thickness / plan.case.aperture.radius();
+    if plan.geometry.symmetry == crate::geometry::Symmetry::Planar {
+        // a thin slit follows the in-plane cosine law; no channel theory is implemented here
+        return if l == 0.0 {
+            (vec![1.0; POLAR_BINS], 1.0)
+        } else {
+            (vec![f64::NAN; POLAR_BINS], f64::NAN)
+        };
+    }
     let beam = crate::analytic::TubeBeam::new(l);
     let bins = (0..POLAR_BINS)
         .map(|k| {
@@ -254,7 +271,9 @@ pub struct FarField {
     pub exponent_ci95: f64,
     /// C of the inverse-square law n = C n1 (a/(z − t))² fitted in the window (geometric mean of
     /// n (z − t)²/(n1 a²)); 1/4 far from a thin orifice in free-molecular flow, where
-    /// n = n1 (1 − d/sqrt(d² + a²))/2 (collisionless kinetic theory).
+    /// n = n1 (1 − d/sqrt(d² + a²))/2 (collisionless kinetic theory). For a slit (a line
+    /// source) the law is n = C n1 a/(z − t), and C = 1/π far from a thin slit, where
+    /// n = n1 atan(a/d)/π (the strip's solid angle 4 atan(a/d) over 4π).
     pub inverse_square_coefficient: f64,
     /// Mole fraction of the lightest species in the window (sample-weighted), its upstream mole
     /// fraction, and their ratio (the axis enrichment); `None` for a pure gas.
@@ -301,9 +320,14 @@ pub fn far_field(plan: &Plan, axis: &AxisProfile) -> Option<FarField> {
         .sum();
     let slope_se = (residual / (k - 2.0).max(1.0) / sxx).sqrt();
     let n1 = plan.estimate.upstream_number_density;
+    // a hole is a point source far away (n ∝ z⁻²), a slit a line source (n ∝ z⁻¹)
+    let p = match plan.geometry.symmetry {
+        crate::geometry::Symmetry::Axisymmetric => 2,
+        crate::geometry::Symmetry::Planar => 1,
+    };
     let log_c = cells
         .iter()
-        .map(|&i| (axis.number_density[i] * (axis.z[i] - t).powi(2) / (n1 * a * a)).ln())
+        .map(|&i| (axis.number_density[i] * ((axis.z[i] - t) / a).powi(p) / n1).ln())
         .sum::<f64>()
         / k;
     let samples: f64 = cells.iter().map(|&i| axis.samples[i]).sum();

@@ -31,26 +31,51 @@ pub struct ReservoirState {
 pub enum ApertureShape {
     /// Circular orifice (thickness 0) or short tube (thickness > 0), axisymmetric.
     Circle,
+    /// Slit of a given width, infinitely long: a thin slit (thickness 0) or a parallel-plate
+    /// channel (thickness > 0), planar; results are per metre of slit length.
+    Slit,
 }
 
 /// Aperture geometry.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Aperture {
     pub shape: ApertureShape,
-    /// Diameter, m.
+    /// The opening across the flow, m: a hole's diameter (`aperture.diameter`), a slit's width
+    /// (`aperture.width`).
     pub diameter: f64,
-    /// Partition thickness (tube length), m; 0 = thin orifice.
+    /// Partition thickness (tube or channel length), m; 0 = thin orifice or slit.
     pub thickness: f64,
 }
 
 impl Aperture {
-    /// Radius, m.
+    /// Half the opening: a hole's radius, a slit's half-width, m.
     pub fn radius(&self) -> f64 {
         0.5 * self.diameter
     }
-    /// Open area, m².
+    /// Open area, m² (a slit: per metre of its length, width × 1 m).
     pub fn area(&self) -> f64 {
-        std::f64::consts::PI * self.radius() * self.radius()
+        match self.shape {
+            ApertureShape::Circle => std::f64::consts::PI * self.radius() * self.radius(),
+            ApertureShape::Slit => self.diameter,
+        }
+    }
+    /// The case key of the opening: `aperture.diameter` or `aperture.width`.
+    pub fn size_key(&self) -> &'static str {
+        match self.shape {
+            ApertureShape::Circle => "aperture.diameter",
+            ApertureShape::Slit => "aperture.width",
+        }
+    }
+    /// The computational symmetry of this aperture.
+    pub fn symmetry(&self) -> crate::geometry::Symmetry {
+        match self.shape {
+            ApertureShape::Circle => crate::geometry::Symmetry::Axisymmetric,
+            ApertureShape::Slit => crate::geometry::Symmetry::Planar,
+        }
+    }
+    /// True when flows are per metre of slit length.
+    pub fn per_unit_length(&self) -> bool {
+        self.shape == ApertureShape::Slit
     }
 }
 
@@ -482,14 +507,39 @@ fn resolve(root: &Table, file: &str) -> Result<Case> {
 
     // Aperture.
     let ap_t = top.req_table("aperture")?;
-    let ap = Section::new(file, "aperture", ap_t, &["shape", "diameter", "thickness"])?;
-    let shape = match ap.string("shape", "\"circle\"")? {
+    let ap = Section::new(
+        file,
+        "aperture",
+        ap_t,
+        &["shape", "diameter", "width", "thickness"],
+    )?;
+    let shapes =
+        "\"circle\" (circular orifice or short tube) or \"slit\" (slit or parallel-plate channel)";
+    let shape = match ap.string("shape", shapes)? {
         None | Some("circle") => ApertureShape::Circle,
-        Some(_) => return Err(ap.reject("shape", "\"circle\" (circular orifice or short tube)")),
+        Some("slit") => ApertureShape::Slit,
+        Some(_) => return Err(ap.reject("shape", shapes)),
     };
-    let diameter = ap.req_quantity("diameter", Dimension::Length)?;
+    let (size_key, other_key) = match shape {
+        ApertureShape::Circle => ("diameter", "width"),
+        ApertureShape::Slit => ("width", "diameter"),
+    };
+    if ap_t.contains_key(other_key) {
+        return Err(ap.reject(
+            other_key,
+            &format!(
+                "no `{other_key}` for shape = \"{}\"; give its `{size_key}`",
+                if shape == ApertureShape::Slit {
+                    "slit"
+                } else {
+                    "circle"
+                }
+            ),
+        ));
+    }
+    let diameter = ap.req_quantity(size_key, Dimension::Length)?;
     if diameter <= 0.0 {
-        return Err(ap.reject("diameter", "a length above 0"));
+        return Err(ap.reject(size_key, "a length above 0"));
     }
     let thickness = ap.quantity("thickness", Dimension::Length)?.unwrap_or(0.0);
     if thickness < 0.0 {
@@ -501,7 +551,9 @@ fn resolve(root: &Table, file: &str) -> Result<Case> {
     if thickness > 200.0 * diameter {
         return Err(ap.reject(
             "thickness",
-            "at most 200 diameters (longer channels are outside the aperture scope)",
+            &format!(
+                "at most 200 times the {size_key} (longer channels are outside the aperture scope)"
+            ),
         ));
     }
 

@@ -1,12 +1,22 @@
-//! Axisymmetric aperture geometry: the (z, r) half-plane with a partition of thickness `t`
-//! pierced by a circular hole of radius `a`, bounded by reservoir planes and a cylinder.
+//! Aperture geometry: one two-dimensional computational half-plane (z, r) standing for the
+//! three-dimensional gas in one of two ways ([`Symmetry`]):
+//! - **axisymmetric** (circular hole or short tube): r is the distance from the z axis, the
+//!   partition is pierced by a hole of radius a, the outer boundary is a cylinder;
+//! - **planar** (slit): r is the distance |y| from the slit's mid-plane, the slit has half-width
+//!   a and is infinitely long along x; everything is per metre of slit length, and the
+//!   mid-plane y = 0 is a mirror plane.
 //!
 //! Coordinates: z along the axis (flow direction +z), the partition occupies
 //! 0 ≤ z ≤ t, a ≤ r ≤ R; upstream region z_min ≤ z < 0, downstream t < z ≤ z_max, r < R.
 //! This module owns the surfaces and the exact ray–surface intersections (planes z = const and
-//! cylinders r = const) of a straight 3-D flight written in the molecule's local frame
-//! (position (r, 0, z), velocity (v_r, v_θ, v_z)). It decides nothing about what a hit does;
-//! that is the `mover`'s job. Invariant: a valid flight segment never enters the solid.
+//! surfaces r = const) of a straight 3-D flight written in the molecule's local frame: position
+//! (r, 0, z), velocity (v_r, v_θ, v_z), where v_θ is the azimuthal velocity (axisymmetric) or the
+//! velocity along the slit, v_x (planar). The two symmetries share every routine: a planar flight
+//! is an axisymmetric one whose out-of-plane velocity does not move it off its plane (v_x never
+//! changes |y|), and returning from the far side of the mirror plane is the planar form of the
+//! rotation back into the meridian half-plane ([`fly`]). It also owns the measures (face areas,
+//! cell volumes) of each symmetry. It decides nothing about what a hit does; that is the
+//! `mover`'s job. Invariant: a valid flight segment never enters the solid.
 
 /// Flight state of one molecule in its local frame: position (r, 0, z), velocity (v_r, v_θ, v_z).
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -45,10 +55,65 @@ pub struct Surface {
     pub role: SurfaceRole,
 }
 
-/// The axisymmetric domain.
+/// How the computational half-plane (z, r) stands for the 3-D gas.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Symmetry {
+    /// Rotation about the z axis: r is the distance from the axis; measures are whole 3-D
+    /// volumes and areas (m³, m²).
+    Axisymmetric,
+    /// Translation along x and mirror symmetry about y = 0: r = |y|; measures are per metre of
+    /// length along x and count both sides of the mirror plane (m² per m, m per m).
+    Planar,
+}
+
+impl Symmetry {
+    /// Area of the part r_lo ≤ r ≤ r_hi of a plane z = const: an annulus π(r_hi² − r_lo²), or
+    /// two strips 2(r_hi − r_lo) per metre.
+    #[inline]
+    pub fn ring_area(self, r_lo: f64, r_hi: f64) -> f64 {
+        match self {
+            Symmetry::Axisymmetric => std::f64::consts::PI * (r_hi * r_hi - r_lo * r_lo),
+            Symmetry::Planar => 2.0 * (r_hi - r_lo),
+        }
+    }
+
+    /// Area of the surface r = `r` over an axial length `len`: a cylinder 2π r len, or two
+    /// planes y = ±r, 2 len per metre.
+    #[inline]
+    pub fn band_area(self, r: f64, len: f64) -> f64 {
+        match self {
+            Symmetry::Axisymmetric => 2.0 * std::f64::consts::PI * r * len,
+            Symmetry::Planar => 2.0 * len,
+        }
+    }
+
+    /// The r of a point distributed uniformly over the ring r_lo ≤ r ≤ r_hi, from u ∈ [0, 1).
+    #[inline]
+    pub fn ring_point(self, r_lo: f64, r_hi: f64, u: f64) -> f64 {
+        match self {
+            Symmetry::Axisymmetric => (r_lo * r_lo + u * (r_hi * r_hi - r_lo * r_lo)).sqrt(),
+            Symmetry::Planar => r_lo + u * (r_hi - r_lo),
+        }
+    }
+
+    /// The share of the out-of-plane velocity v_θ in the motion across the half-plane: all of
+    /// it about an axis, none along a slit (v_x never changes |y|).
+    #[inline]
+    pub fn in_plane(self, vt: f64) -> f64 {
+        match self {
+            Symmetry::Axisymmetric => vt,
+            Symmetry::Planar => 0.0,
+        }
+    }
+}
+
+/// The computational domain of an aperture.
 #[derive(Debug, Clone, PartialEq)]
-pub struct Axisymmetric {
-    /// Aperture radius a, m.
+pub struct Domain {
+    /// How the half-plane stands for the gas.
+    pub symmetry: Symmetry,
+    /// Aperture radius a (a slit's half-width), m.
     pub radius: f64,
     /// Partition thickness t, m.
     pub thickness: f64,
@@ -62,12 +127,19 @@ pub struct Axisymmetric {
     pub surfaces: Vec<Surface>,
 }
 
-/// Index of a surface in [`Axisymmetric::surfaces`].
+/// Index of a surface in [`Domain::surfaces`].
 pub type SurfaceId = usize;
 
-impl Axisymmetric {
+impl Domain {
     /// Build the domain; lengths in m.
-    pub fn new(radius: f64, thickness: f64, upstream: f64, downstream: f64, r_max: f64) -> Self {
+    pub fn new(
+        symmetry: Symmetry,
+        radius: f64,
+        thickness: f64,
+        upstream: f64,
+        downstream: f64,
+        r_max: f64,
+    ) -> Self {
         assert!(
             radius > 0.0
                 && thickness >= 0.0
@@ -138,7 +210,8 @@ impl Axisymmetric {
                 role: SurfaceRole::Wall,
             });
         }
-        Axisymmetric {
+        Domain {
+            symmetry,
             radius,
             thickness,
             z_min,
@@ -185,19 +258,19 @@ impl Axisymmetric {
         d
     }
 
-    /// Gas volume of the upstream region (z < 0), m³.
+    /// Gas volume of the upstream region (z < 0), m³ (planar: m² per metre).
     pub fn upstream_volume(&self) -> f64 {
-        std::f64::consts::PI * self.r_max * self.r_max * (-self.z_min)
+        self.symmetry.ring_area(0.0, self.r_max) * (-self.z_min)
     }
 
-    /// Gas volume of the bore (0 ≤ z ≤ t, r < a), m³.
+    /// Gas volume of the bore (0 ≤ z ≤ t, r < a), m³ (planar: m² per metre).
     pub fn bore_volume(&self) -> f64 {
-        std::f64::consts::PI * self.radius * self.radius * self.thickness
+        self.symmetry.ring_area(0.0, self.radius) * self.thickness
     }
 
-    /// Gas volume of the downstream region (z > t), m³.
+    /// Gas volume of the downstream region (z > t), m³ (planar: m² per metre).
     pub fn downstream_volume(&self) -> f64 {
-        std::f64::consts::PI * self.r_max * self.r_max * (self.z_max - self.thickness)
+        self.symmetry.ring_area(0.0, self.r_max) * (self.z_max - self.thickness)
     }
 
     /// First intersection of the flight from (z, r) with velocity (v_z, v_r, v_θ) with any
@@ -211,6 +284,7 @@ impl Axisymmetric {
         last: Option<SurfaceId>,
     ) -> Option<(f64, SurfaceId)> {
         let Flight { z, r, vz, vr, vt } = *f;
+        let vt = self.symmetry.in_plane(vt);
         let mut best: Option<(f64, SurfaceId)> = None;
         let mut limit = t_max;
         // Cheap rejection of cylinders: r² along a straight flight is convex in time, so the
@@ -312,10 +386,28 @@ fn cylinder_time(
     }
 }
 
-/// Advance a straight 3-D flight by time `t` and rotate back into the (z, r) half-plane.
-/// Returns (z, r, v_r, v_θ); v_z is unchanged.
+/// Advance a straight 3-D flight by time `t` and bring it back into the (z, r) half-plane:
+/// rotate about the axis (axisymmetric), or mirror a point that crossed y = 0 (planar; v_θ is the
+/// velocity along the slit and never changes). Returns (z, r, v_r, v_θ); v_z is unchanged.
 #[inline]
-pub fn fly(z: f64, r: f64, vz: f64, vr: f64, vt: f64, t: f64) -> (f64, f64, f64, f64) {
+pub fn fly(
+    symmetry: Symmetry,
+    z: f64,
+    r: f64,
+    vz: f64,
+    vr: f64,
+    vt: f64,
+    t: f64,
+) -> (f64, f64, f64, f64) {
+    if symmetry == Symmetry::Planar {
+        let y = r + vr * t;
+        let zn = z + vz * t;
+        return if y >= 0.0 {
+            (zn, y, vr, vt)
+        } else {
+            (zn, -y, -vr, vt)
+        };
+    }
     let x = r + vr * t;
     let y = vt * t;
     let rn = (x * x + y * y).sqrt();
@@ -346,8 +438,29 @@ mod tests {
     }
 
     #[test]
+    fn planar_flights_mirror_at_the_mid_plane_and_keep_the_slit_velocity() {
+        let (z, y, vy, vx) = fly(Symmetry::Planar, 0.0, 0.5, 2.0, -1.0, 7.0, 1.5);
+        assert_eq!((z, y, vy, vx), (3.0, 1.0, 1.0, 7.0));
+        // a slit wall y = 1 seen from y = 0.5 moving away from it at -1 m/s: reached at t = 1.5
+        // through the mirror plane; v_x plays no part
+        let d = Domain::new(Symmetry::Planar, 1.0, 0.5, 2.0, 2.0, 3.0);
+        let f = Flight {
+            z: 0.2,
+            r: 0.5,
+            vz: 0.0,
+            vr: -1.0,
+            vt: 100.0,
+        };
+        let (t, id) = d.first_hit(&f, 10.0, None).unwrap();
+        assert!((t - 1.5).abs() < 1e-12, "{t}");
+        assert_eq!(d.surfaces[id].role, SurfaceRole::Wall);
+        assert_eq!(Symmetry::Planar.ring_area(0.5, 1.0), 1.0);
+        assert_eq!(Symmetry::Planar.ring_point(0.5, 1.0, 0.5), 0.75);
+    }
+
+    #[test]
     fn fly_keeps_distance() {
-        let (z, r, vr, vt) = fly(0.0, 1.0, 1.0, 0.0, 1.0, 1.0);
+        let (z, r, vr, vt) = fly(Symmetry::Axisymmetric, 0.0, 1.0, 1.0, 0.0, 1.0, 1.0);
         assert!((z - 1.0).abs() < 1e-15);
         assert!((r - 2f64.sqrt()).abs() < 1e-15);
         // speed in the transverse plane is conserved

@@ -134,7 +134,17 @@ pub struct Grid {
 impl Grid {
     /// Grid for an aperture of radius `a`, partition thickness `t`, domain z ∈ [z_min, z_max],
     /// r ∈ [0, r_max], target cell size `cell` and `sub` subcells per direction.
-    pub fn new(a: f64, t: f64, z_min: f64, z_max: f64, r_max: f64, cell: f64, sub: usize) -> Grid {
+    #[allow(clippy::too_many_arguments)]
+    pub fn new(
+        symmetry: crate::geometry::Symmetry,
+        a: f64,
+        t: f64,
+        z_min: f64,
+        z_max: f64,
+        r_max: f64,
+        cell: f64,
+        sub: usize,
+    ) -> Grid {
         let z = Axis::new(&[(z_min, 0.0), (0.0, t), (t, z_max)], cell);
         let r = Axis::new(&[(0.0, a), (a, r_max)], cell);
         let mut volume = vec![0.0; z.len() * r.len()];
@@ -146,8 +156,7 @@ impl Grid {
                 let rc = 0.5 * (r0 + r1);
                 let solid = t > 0.0 && zc > 0.0 && zc < t && rc > a;
                 if !solid {
-                    volume[iz * r.len() + ir] =
-                        std::f64::consts::PI * (r1 * r1 - r0 * r0) * (z1 - z0);
+                    volume[iz * r.len() + ir] = symmetry.ring_area(r0, r1) * (z1 - z0);
                 }
             }
         }
@@ -204,7 +213,16 @@ mod tests {
     #[test]
     fn zones_align_with_walls_and_volumes_add_up() {
         let (a, t) = (1.0, 0.7);
-        let g = Grid::new(a, t, -3.0, t + 2.0, 2.5, 0.3, 2);
+        let g = Grid::new(
+            crate::geometry::Symmetry::Axisymmetric,
+            a,
+            t,
+            -3.0,
+            t + 2.0,
+            2.5,
+            0.3,
+            2,
+        );
         // the zone edges include the partition faces and the hole edge
         assert!(g.z.zones.iter().any(|z| z.start == 0.0) && g.z.zones.iter().any(|z| z.start == t));
         assert!(g.r.zones.iter().any(|z| z.start == a));

@@ -681,7 +681,8 @@ fn cmd_size(
         println!("{}", serde_json::to_string_pretty(&r)?);
     } else {
         println!(
-            "aperture diameter for {}: {:.6e} m ± {:.2e} m (95 %){}",
+            "{} for {}: {:.6e} m ± {:.2e} m (95 %){}",
+            r.sized_key,
             r.target_flow,
             r.diameter_m,
             r.diameter_ci95_m,
@@ -767,33 +768,57 @@ fn print_estimate(plan: &Plan) {
         c.downstream.pressure,
         c.downstream.temperature
     );
-    println!(
-        "aperture                 diameter {:.6e} m, thickness {:.6e} m (L/R = {:.4})",
-        c.aperture.diameter,
-        c.aperture.thickness,
-        c.aperture.thickness / c.aperture.radius()
-    );
+    let slit = c.aperture.per_unit_length();
+    if slit {
+        println!(
+            "aperture                 slit of width {:.6e} m, thickness {:.6e} m (L/h = {:.4}); flows per metre of slit length",
+            c.aperture.diameter,
+            c.aperture.thickness,
+            c.aperture.thickness / c.aperture.diameter
+        );
+    } else {
+        println!(
+            "aperture                 diameter {:.6e} m, thickness {:.6e} m (L/R = {:.4})",
+            c.aperture.diameter,
+            c.aperture.thickness,
+            c.aperture.thickness / c.aperture.radius()
+        );
+    }
+    let per = if slit { "/m" } else { "" };
     println!(
         "mean free path upstream  {:.4e} m",
         e.upstream_mean_free_path
     );
     println!(
-        "Knudsen number λ1/D      {:.4e}   regime: {}",
+        "Knudsen number λ1/{}      {:.4e}   regime: {}",
+        if slit { "h" } else { "D" },
         e.knudsen_number,
         e.regime.label()
     );
-    println!("rarefaction δ = p a/(μ v0) {:.4e}", e.rarefaction_parameter);
-    println!("Clausing factor          {:.5}", e.clausing_factor);
+    println!(
+        "rarefaction δ = p a/(μ v0) {:.4e}{}",
+        e.rarefaction_parameter,
+        if slit { " (a = half-width)" } else { "" }
+    );
+    println!(
+        "{}{:.5}",
+        if slit {
+            "slit transmission        "
+        } else {
+            "Clausing factor          "
+        },
+        e.clausing_factor
+    );
     let fm_q = kinflux::units::TradeFlow::from_molecules(
         e.free_molecular_net_mass_flow / c.gas.mean_mass(),
         c.upstream.temperature,
     );
     println!(
-        "free-molecular flow      {:.5e} kg/s into vacuum; net {:.5e} kg/s = {:.5e} sccm",
+        "free-molecular flow      {:.5e} kg/s{per} into vacuum; net {:.5e} kg/s{per} = {:.5e} sccm{per}",
         e.free_molecular_mass_flow, e.free_molecular_net_mass_flow, fm_q.sccm
     );
     println!(
-        "isentropic nozzle (Cd=1) {:.5e} kg/s (W = {:.4})",
+        "isentropic nozzle (Cd=1) {:.5e} kg/s{per} (W = {:.4})",
         e.isentropic_mass_flow, e.isentropic_reduced_flow
     );
 }
@@ -840,6 +865,9 @@ fn print_result(s: &Summary) {
         "result ({}; {} steps, {:.1} s, {:.3e} particle-steps/s)",
         s.run.stop_reason_text, s.run.steps, s.run.wall_time_s, s.run.particle_steps_per_s
     );
+    if f.basis != "whole aperture" {
+        println!("  flows below are {}", f.basis);
+    }
     println!(
         "  mass flow rate         {:.5e} ± {:.2e} kg/s (95 %)",
         f.mass_flow_rate_kg_s, f.mass_flow_rate_ci95_kg_s

@@ -1,7 +1,7 @@
 //! The move stage: straight flights over one time step with exact wall hits.
 //!
 //! A molecule flies in 3-D from its (z, r) position; every intersection with a surface is found
-//! exactly (`geometry::Axisymmetric::first_hit`), so any number of wall hits per step is
+//! exactly (`geometry::Domain::first_hit`), so any number of wall hits per step is
 //! handled and no molecule can end a step inside a wall or pass through one. Walls reflect by
 //! the Maxwell model (diffuse at the wall temperature with probability equal to the
 //! accommodation, specular otherwise); molecules reaching a reservoir boundary leave the domain.
@@ -9,7 +9,7 @@
 //! Invariant: after `advance` returns `Fate::Stays`, the molecule is inside the gas region.
 
 pub use crate::geometry::Flight;
-use crate::geometry::{fly, Axisymmetric, SurfaceId, SurfaceRole, SurfaceShape};
+use crate::geometry::{fly, Domain, SurfaceId, SurfaceRole, SurfaceShape};
 use rand::Rng;
 use rand_distr::StandardNormal;
 
@@ -39,13 +39,14 @@ pub const MAX_HITS_PER_STEP: usize = 10_000;
 /// Fly `m` for time `dt`. `last` is the surface the molecule starts on (an injection boundary),
 /// `z_count` the measurement plane; `on_cross(sign, r, cos θ)` is called for each crossing of
 /// that plane (sign +1 in the +z direction, −1 against), with the crossing radius and the cosine
-/// of the angle between the velocity and the axis. `diffused` is set
+/// of the angle between the velocity and the axis (planar: between the velocity's projection on
+/// the (z, y) plane and the axis, the angle of the slit's beam). `diffused` is set
 /// when the molecule was re-emitted diffusely by a wall (its internal energy must then be
 /// resampled at the wall temperature by the caller; specular hits keep it).
 #[allow(clippy::too_many_arguments)]
 #[inline]
 pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
-    geom: &Axisymmetric,
+    geom: &Domain,
     wall: &WallReflection,
     m: &mut Flight,
     dt: f64,
@@ -61,7 +62,7 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
         let reach2 = (m.vz * m.vz + m.vr * m.vr + m.vt * m.vt) * dt * dt;
         let c = geom.clearance(m.z, m.r);
         if c > 0.0 && reach2 < c * c {
-            let (zn, rn, vrn, vtn) = fly(m.z, m.r, m.vz, m.vr, m.vt, dt);
+            let (zn, rn, vrn, vtn) = fly(geom.symmetry, m.z, m.r, m.vz, m.vr, m.vt, dt);
             m.z = zn;
             m.r = rn;
             m.vr = vrn;
@@ -73,7 +74,7 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
         let hit = geom.first_hit(m, remaining, last);
         let t = hit.map_or(remaining, |(t, _)| t);
         let z0 = m.z;
-        let (mut zn, mut rn, vrn, vtn) = fly(m.z, m.r, m.vz, m.vr, m.vt, t);
+        let (mut zn, mut rn, vrn, vtn) = fly(geom.symmetry, m.z, m.r, m.vz, m.vr, m.vt, t);
         // Snap onto the surface hit exactly, so that a wall point on the measurement plane is
         // never mistaken for a crossing and the next search excludes the zero root.
         if let Some((_, id)) = hit {
@@ -86,9 +87,10 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
         // flights that start or end on the plane sit on a wall there, never in the aperture).
         if (z0 < z_count && zn > z_count) || (z0 > z_count && zn < z_count) {
             let s = (z_count - z0) / m.vz;
+            let vt = geom.symmetry.in_plane(m.vt);
             let x = m.r + m.vr * s;
-            let y = m.vt * s;
-            let speed = (m.vz * m.vz + m.vr * m.vr + m.vt * m.vt).sqrt();
+            let y = vt * s;
+            let speed = (m.vz * m.vz + m.vr * m.vr + vt * vt).sqrt();
             on_cross(m.vz.signum(), (x * x + y * y).sqrt(), m.vz.abs() / speed);
         }
         match hit {

@@ -28,7 +28,7 @@ use crate::case::Case;
 use crate::collide::CollisionModel;
 use crate::constants::BOLTZMANN;
 use crate::error::{Error, Result};
-use crate::geometry::Axisymmetric;
+use crate::geometry::{Domain, Symmetry};
 use crate::grid::Grid;
 use crate::mover::WallReflection;
 use crate::reservoir::{inflow_elements, InflowElement, ReservoirSide};
@@ -82,7 +82,7 @@ pub struct Choices {
 #[derive(Debug, Clone)]
 pub struct Plan {
     pub case: Case,
-    pub geometry: Axisymmetric,
+    pub geometry: Domain,
     pub grid: Grid,
     pub weights: RadialWeights,
     /// Species masses, kg.
@@ -119,7 +119,7 @@ impl Plan {
         let t1 = case.upstream.temperature;
         let p2 = case.downstream.pressure;
         let t2 = case.downstream.temperature;
-        let estimate = Estimate::new(&case.gas, p1, t1, p2, t2, a, t);
+        let estimate = Estimate::for_aperture(&case.gas, p1, t1, p2, t2, &case.aperture);
         let dsmc = case.solver.collisions;
         let lambda1 = estimate.upstream_mean_free_path;
         let mean_vmp = case.gas.most_probable_speed(t1);
@@ -146,9 +146,16 @@ impl Plan {
                 case.source
             )));
         }
-        let ratio = d
-            .radial_weight_ratio
-            .unwrap_or(if dsmc { outer } else { 2.0 });
+        // Radial weighting evens out the molecules of an axisymmetric grid, whose cell volumes
+        // grow with r; a planar grid's do not, so a slit needs none.
+        let planar = case.aperture.symmetry() == Symmetry::Planar;
+        let ratio = d.radial_weight_ratio.unwrap_or(if planar {
+            1.0
+        } else if dsmc {
+            outer
+        } else {
+            2.0
+        });
         let cell = match d.cell_size {
             Some(c) => c * a,
             None if dsmc => (a / 6.0).min(0.5 * lambda1).max(a / 40.0),
@@ -159,8 +166,10 @@ impl Plan {
             None if dsmc => ((0.52 * cell / (0.2 * lambda1)).ceil() as usize).clamp(1, 4),
             None => 1,
         };
-        let geometry = Axisymmetric::new(a, t, up_len * a, down_len * a, outer * a);
+        let symmetry = case.aperture.symmetry();
+        let geometry = Domain::new(symmetry, a, t, up_len * a, down_len * a, outer * a);
         let grid = Grid::new(
+            symmetry,
             a,
             t,
             geometry.z_min,

@@ -156,8 +156,18 @@ pub fn field_map(
             .build_cartesian_2d(z0..z1, 0.0..r1)
             .map_err(|e| fail(path, e))?;
         c.configure_mesh()
-            .x_desc("z / a (axial, flow from left to right; a = aperture radius)")
-            .y_desc("r / a (radial)")
+            .x_desc(match plan.geometry.symmetry {
+                crate::geometry::Symmetry::Axisymmetric => {
+                    "z / a (axial, flow from left to right; a = aperture radius)"
+                }
+                crate::geometry::Symmetry::Planar => {
+                    "z / a (flow from left to right; a = slit half-width)"
+                }
+            })
+            .y_desc(match plan.geometry.symmetry {
+                crate::geometry::Symmetry::Axisymmetric => "r / a (radial)",
+                crate::geometry::Symmetry::Planar => "y / a (from the slit's mid-plane)",
+            })
             .disable_mesh()
             .draw()
             .map_err(|e| fail(path, e))?;
@@ -267,7 +277,12 @@ pub fn beam_chart(path: &Path, sim: &Simulation, fields: &Fields) -> Result<()> 
             .build_cartesian_2d(0.0..90.0, 0.0..top)
             .map_err(|e| fail(path, e))?;
         c.configure_mesh()
-            .x_desc("polar angle from the axis (degrees)")
+            .x_desc(match plan.geometry.symmetry {
+                crate::geometry::Symmetry::Axisymmetric => "polar angle from the axis (degrees)",
+                crate::geometry::Symmetry::Planar => {
+                    "in-plane angle from the axis, across the slit (degrees)"
+                }
+            })
             .y_desc("intensity / cosine law of the same throughput")
             .draw()
             .map_err(|e| fail(path, e))?;
@@ -279,7 +294,11 @@ pub fn beam_chart(path: &Path, sim: &Simulation, fields: &Fields) -> Result<()> 
         .label("cosine law (thin orifice, Knudsen)")
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.mix(0.5)));
         c.draw_series(LineSeries::new(
-            ang.theta_deg.iter().zip(&theory).map(|(x, y)| (*x, *y)),
+            ang.theta_deg
+                .iter()
+                .zip(&theory)
+                .filter(|(_, y)| y.is_finite())
+                .map(|(x, y)| (*x, *y)),
             RED.stroke_width(2),
         ))
         .map_err(|e| fail(path, e))?

@@ -8,7 +8,7 @@
 //! molecule then flies for a uniformly random fraction of the step so that entries are spread
 //! over the step. Face elements follow the radial weight bands, so each element has one weight.
 
-use crate::geometry::{Axisymmetric, SurfaceId};
+use crate::geometry::{Domain, SurfaceId, Symmetry};
 use crate::mover::{flux_normal_speed, Flight};
 use crate::weights::RadialWeights;
 use rand::Rng;
@@ -17,15 +17,16 @@ use rand_distr::{Distribution, Poisson, StandardNormal};
 /// Where on the boundary an element lies.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum ElementShape {
-    /// Annulus of the plane z = `z` between radii `r_lo` and `r_hi`; `into` is the sign of v_z
-    /// of entering molecules.
+    /// Annulus of the plane z = `z` between radii `r_lo` and `r_hi` (planar: two strips
+    /// r_lo ≤ |y| ≤ r_hi); `into` is the sign of v_z of entering molecules.
     Annulus {
         z: f64,
         r_lo: f64,
         r_hi: f64,
         into: f64,
     },
-    /// Band of the outer cylinder r = `r` between `z_lo` and `z_hi`; entering molecules have v_r < 0.
+    /// Band of the outer surface r = `r` (cylinder, or planes y = ±r) between `z_lo` and `z_hi`;
+    /// entering molecules have v_r < 0.
     Band { r: f64, z_lo: f64, z_hi: f64 },
 }
 
@@ -42,6 +43,8 @@ pub struct InflowElement {
     pub expected_per_step: f64,
     /// Whether this element belongs to the upstream reservoir.
     pub upstream: bool,
+    /// The domain's symmetry (how a point is placed uniformly on an annulus).
+    pub symmetry: Symmetry,
 }
 
 impl InflowElement {
@@ -68,8 +71,7 @@ impl InflowElement {
                 r_hi,
                 into,
             } => {
-                let u: f64 = rng.random();
-                let r = (r_lo * r_lo + u * (r_hi * r_hi - r_lo * r_lo)).sqrt();
+                let r = self.symmetry.ring_point(r_lo, r_hi, rng.random());
                 Flight {
                     z,
                     r,
@@ -105,7 +107,7 @@ pub struct ReservoirSide {
 /// `masses[s]` are the species masses, `fnum` the real molecules per simulated molecule of
 /// weight 1, `dt` the time step. A reservoir with zero density contributes no element.
 pub fn inflow_elements(
-    geom: &Axisymmetric,
+    geom: &Domain,
     weights: &RadialWeights,
     masses: &[f64],
     upstream: &ReservoirSide,
@@ -114,7 +116,6 @@ pub fn inflow_elements(
     dt: f64,
 ) -> Vec<InflowElement> {
     let mut out = Vec::new();
-    let pi = std::f64::consts::PI;
     for (upstream_side, side) in [(true, upstream), (false, downstream)] {
         for (s, &mass) in masses.iter().enumerate() {
             let n = side.species_density[s];
@@ -125,26 +126,26 @@ pub fn inflow_elements(
             let sigma = crate::maxwell::sigma(side.temperature, mass);
             let (plane_id, plane_z, into, cyl_id, z_lo, z_hi) = if upstream_side {
                 (
-                    Axisymmetric::UPSTREAM_PLANE,
+                    Domain::UPSTREAM_PLANE,
                     geom.z_min,
                     1.0,
-                    Axisymmetric::UPSTREAM_CYLINDER,
+                    Domain::UPSTREAM_CYLINDER,
                     geom.z_min,
                     0.0,
                 )
             } else {
                 (
-                    Axisymmetric::DOWNSTREAM_PLANE,
+                    Domain::DOWNSTREAM_PLANE,
                     geom.z_max,
                     -1.0,
-                    Axisymmetric::DOWNSTREAM_CYLINDER,
+                    Domain::DOWNSTREAM_CYLINDER,
                     geom.thickness,
                     geom.z_max,
                 )
             };
             for j in 0..weights.bands {
                 let (r_lo, r_hi) = weights.band_edges(j);
-                let area = pi * (r_hi * r_hi - r_lo * r_lo);
+                let area = geom.symmetry.ring_area(r_lo, r_hi);
                 out.push(InflowElement {
                     shape: ElementShape::Annulus {
                         z: plane_z,
@@ -157,9 +158,10 @@ pub fn inflow_elements(
                     sigma,
                     expected_per_step: flux * area * dt / (fnum * weights.factor[j]),
                     upstream: upstream_side,
+                    symmetry: geom.symmetry,
                 });
             }
-            let area = 2.0 * pi * geom.r_max * (z_hi - z_lo);
+            let area = geom.symmetry.band_area(geom.r_max, z_hi - z_lo);
             out.push(InflowElement {
                 shape: ElementShape::Band {
                     r: geom.r_max,
@@ -171,6 +173,7 @@ pub fn inflow_elements(
                 sigma,
                 expected_per_step: flux * area * dt / (fnum * weights.factor[weights.bands - 1]),
                 upstream: upstream_side,
+                symmetry: geom.symmetry,
             });
         }
     }

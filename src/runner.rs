@@ -216,15 +216,26 @@ pub fn write_fields_and_charts(
         ("sampling_steps", sim.fields.steps.to_string()),
         ("molecule_weight", format!("{:e}", sim.plan.fnum)),
         ("time_step_s", format!("{:e}", sim.plan.dt)),
-        ("aperture_diameter_m", format!("{:e}", c.aperture.diameter)),
+        (
+            if c.aperture.per_unit_length() {
+                "aperture_width_m"
+            } else {
+                "aperture_diameter_m"
+            },
+            format!("{:e}", c.aperture.diameter),
+        ),
         (
             "partition_thickness_m",
             format!("{:e}", c.aperture.thickness),
         ),
         (
             "coordinates",
-            "z axial (flow +z, partition at 0 <= z <= thickness), r radial; arrays [nz][nr]"
-                .to_string(),
+            if c.aperture.per_unit_length() {
+                "z across the slit plate (flow +z, partition at 0 <= z <= thickness), r = |y| distance from the slit's mid-plane; planar, per metre of slit length; arrays [nz][nr]"
+            } else {
+                "z axial (flow +z, partition at 0 <= z <= thickness), r radial; arrays [nz][nr]"
+            }
+            .to_string(),
         ),
         ("caution", crate::summary::CAUTION.to_string()),
     ];

@@ -840,7 +840,7 @@ fn fill(plan: &Plan, mol: &mut Molecules) {
             if r_hi <= r_lo {
                 continue;
             }
-            let volume = std::f64::consts::PI * (r_hi * r_hi - r_lo * r_lo) * (z_hi - z_lo);
+            let volume = g.symmetry.ring_area(r_lo, r_hi) * (z_hi - z_lo);
             for (s, &n) in dens.iter().enumerate() {
                 let mut rng = stream(plan.case.solver.seed, 0, Stage::Fill, index);
                 index += 1;
@@ -850,8 +850,7 @@ fn fill(plan: &Plan, mol: &mut Molecules) {
                 let sigma = crate::maxwell::sigma(temp, plan.masses[s]);
                 mol.reserve(count as usize);
                 for _ in 0..count {
-                    let u: f64 = rng.random();
-                    let r = (r_lo * r_lo + u * (r_hi * r_hi - r_lo * r_lo)).sqrt();
+                    let r = g.symmetry.ring_point(r_lo, r_hi, rng.random());
                     let z = z_lo + rng.random::<f64>() * (z_hi - z_lo);
                     let v = crate::maxwell::velocity(sigma, &mut rng);
                     let erot = crate::maxwell::rotational_energy(plan.rot_dof[s], temp, &mut rng);

@@ -1,15 +1,16 @@
 //! Aperture sizing: the diameter that delivers a target flow at the case's pressures and gas.
 //!
 //! Method: start from the analytic free-molecular estimate (Knudsen effusion with the Clausing
-//! factor of the fixed partition thickness, Ṁ_fm ∝ D² for a thin orifice; solved by fixed-point
-//! iteration because the Clausing factor changes with D), then refine with DSMC runs: after
-//! each run the next diameter is D·(target/F)^(1/s) on log D, with s the measured log–log
-//! slope of flow against diameter between the last two runs (a secant; s = 2 until two runs
-//! exist, or when the measured slope is outside 1–4, i.e. noise). The search stops when a run's
+//! factor of the fixed partition thickness, Ṁ_fm ∝ D² for a thin orifice, ∝ h for a slit of
+//! width h per metre; solved by fixed-point iteration because the transmission probability
+//! changes with D), then refine with DSMC runs: after each run the next opening is
+//! D·(target/F)^(1/s) on log D, with s the measured log–log slope of flow against the opening
+//! between the last two runs (a secant; s = 2 for a hole and 1 for a slit until two runs exist,
+//! or when the measured slope is outside 0.5–4, i.e. noise). The search stops when a run's
 //! flow is within its own 95 % interval of the target. The answer is the last run's diameter
 //! corrected by the same secant step, with the 95 % interval of that correction,
 //! D·(half-width/F)/s. Every run is an ordinary run directory under the sizing directory.
-//! Invariants: only `aperture.diameter` changes between runs (the partition thickness stays:
+//! Invariants: only `aperture.diameter` (a slit: `aperture.width`) changes between runs (the partition thickness stays:
 //! it is the plate the hole is made in); the flow is compared in the target's own kind (mass,
 //! or molecules for throughput units).
 
@@ -65,6 +66,9 @@ pub struct SizingReport {
     pub analytic_start_diameter_m: f64,
     pub slope_used: f64,
     pub partition_thickness_m: f64,
+    /// The case key that was sized: `aperture.diameter`, or `aperture.width` for a slit (whose
+    /// flows and target are then per metre of slit length).
+    pub sized_key: &'static str,
     pub runs: Vec<SizingRun>,
     pub caution: &'static str,
 }
@@ -74,11 +78,12 @@ fn analytic_flow(
     text: &str,
     file: &str,
     overrides: &[String],
+    key: &str,
     d: f64,
     molecules: bool,
 ) -> Result<f64> {
     let mut o = overrides.to_vec();
-    o.push(format!("aperture.diameter=\"{d:e} m\""));
+    o.push(format!("{key}=\"{d:e} m\""));
     let c = case::parse(text, file, &o)?;
     let p = Plan::new(&c)?;
     Ok(if molecules {
@@ -94,6 +99,13 @@ pub fn size(req: &SizingRequest, log: impl Fn(&str)) -> Result<SizingReport> {
     let text = std::fs::read_to_string(&req.case_file)
         .map_err(|e| Error::Input(format!("{file}: cannot read the case file: {e}")))?;
     let base = case::parse(&text, &file, &req.overrides)?;
+    let key = base.aperture.size_key();
+    // free-molecular scaling of the flow with the opening: area ∝ D², or ∝ h per metre of slit
+    let power = if base.aperture.per_unit_length() {
+        1.0
+    } else {
+        2.0
+    };
     let target_flow = parse_flow(&req.target, base.upstream.temperature)
         .map_err(|e| Error::Input(format!("--target-flow {}: {e}", req.target)))?;
     let (target, molecules) = match target_flow {
@@ -113,6 +125,7 @@ pub fn size(req: &SizingRequest, log: impl Fn(&str)) -> Result<SizingReport> {
         &text,
         &file,
         &req.overrides,
+        key,
         base.aperture.diameter,
         molecules,
     )?;
@@ -122,11 +135,11 @@ pub fn size(req: &SizingRequest, log: impl Fn(&str)) -> Result<SizingReport> {
             base.upstream.pressure, base.downstream.pressure
         )));
     }
-    // Analytic start: fixed point of D = D·sqrt(target/F_fm(D)).
-    let mut d = base.aperture.diameter * (target / f0).sqrt();
+    // Analytic start: fixed point of D = D·(target/F_fm(D))^(1/power).
+    let mut d = base.aperture.diameter * (target / f0).powf(1.0 / power);
     for _ in 0..30 {
-        let f = analytic_flow(&text, &file, &req.overrides, d, molecules)?;
-        let next = d * (target / f).sqrt();
+        let f = analytic_flow(&text, &file, &req.overrides, key, d, molecules)?;
+        let next = d * (target / f).powf(1.0 / power);
         let done = (next / d - 1.0).abs() < 1e-10;
         d = next;
         if done {
@@ -136,12 +149,12 @@ pub fn size(req: &SizingRequest, log: impl Fn(&str)) -> Result<SizingReport> {
     let start = d;
     crate::output::prepare_run_dir(&req.out, req.force)?;
     let mut runs: Vec<SizingRun> = Vec::new();
-    let mut slope = 2.0;
+    let mut slope = power;
     let mut converged = false;
     for k in 1..=req.max_runs {
         let dir = req.out.join(format!("run-{k:02}"));
         let mut overrides = req.overrides.clone();
-        overrides.push(format!("aperture.diameter=\"{d:e} m\""));
+        overrides.push(format!("{key}=\"{d:e} m\""));
         let r = Request {
             case_file: req.case_file.clone(),
             overrides,
@@ -186,7 +199,7 @@ pub fn size(req: &SizingRequest, log: impl Fn(&str)) -> Result<SizingReport> {
             let (a, b) = (&runs[runs.len() - 2], &runs[runs.len() - 1]);
             if (b.diameter_m / a.diameter_m).ln().abs() > 1e-6 {
                 let s = (b.flow / a.flow).ln() / (b.diameter_m / a.diameter_m).ln();
-                slope = if (1.0..=4.0).contains(&s) { s } else { 2.0 };
+                slope = if (0.5..=4.0).contains(&s) { s } else { power };
             }
         }
         let next = d * (target / flow).powf(1.0 / slope);
@@ -220,6 +233,7 @@ pub fn size(req: &SizingRequest, log: impl Fn(&str)) -> Result<SizingReport> {
         analytic_start_diameter_m: start,
         slope_used: slope,
         partition_thickness_m: base.aperture.thickness,
+        sized_key: key,
         runs,
         caution: crate::summary::CAUTION,
     };

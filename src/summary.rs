@@ -40,6 +40,9 @@ pub struct SpeciesFlow {
 /// Flow through the aperture.
 #[derive(Debug, Clone, Serialize)]
 pub struct FlowSummary {
+    /// What the flows are of: "whole aperture", or "per metre of slit length" (a slit's flows,
+    /// throughputs and conductance are per metre, e.g. kg/(s·m) under the `_kg_s` keys).
+    pub basis: &'static str,
     pub mass_flow_rate_kg_s: f64,
     pub mass_flow_rate_ci95_kg_s: f64,
     /// W = Ṁ / Ṁ_fm with Ṁ_fm the free-molecular flow into vacuum.
@@ -180,6 +183,9 @@ pub struct AngularDistribution {
     /// factor); larger than the first bin's mean for a tube, whose intensity falls off within
     /// the cone.
     pub free_molecular_peaking_factor: f64,
+    /// Unit of the intensities: "per steradian" (hole), or "per radian of the in-plane angle and
+    /// per metre of slit length" (slit).
+    pub intensity_measure: &'static str,
 }
 
 /// The beam downstream of the aperture, from the sampled fields: number density along the
@@ -217,7 +223,8 @@ pub struct FarFieldSummary {
     /// Approximate 95 % half-width of p from the fit residuals.
     pub density_decay_exponent_ci95: f64,
     /// C in n = C n1 (a/(z − thickness))², fitted in the window (1/4 far from a thin orifice in
-    /// free-molecular flow).
+    /// free-molecular flow); for a slit C in n = C n1 a/(z − thickness) (1/π far from a thin
+    /// slit).
     pub inverse_square_coefficient: f64,
     /// Simulated molecules sampled in the window (all steps).
     pub samples: f64,
@@ -372,6 +379,11 @@ impl Summary {
                 throughput_slm: trade.slm,
                 throughput_reference_temperature_k: t_ref,
                 standard_conditions: "sccm and slm at 0 °C (273.15 K) and 101325 Pa",
+                basis: if case.aperture.per_unit_length() {
+                    "per metre of slit length"
+                } else {
+                    "whole aperture"
+                },
                 conductance_l_s: conductance,
                 species,
             },
@@ -504,7 +516,7 @@ fn profiles(sim: &Simulation, mdot: f64) -> (ApertureProfile, AngularDistributio
     let f = &sim.flux;
     let a = plan.geometry.radius;
     let time = f.profile_steps.max(1) as f64 * plan.dt;
-    let mean = mdot / (std::f64::consts::PI * a * a);
+    let mean = mdot / plan.case.aperture.area();
     let mut r_over_a = Vec::with_capacity(RADIAL_BINS);
     let mut flux = Vec::with_capacity(RADIAL_BINS);
     for (k, m) in f.radial_sum.iter().enumerate() {
@@ -513,7 +525,7 @@ fn profiles(sim: &Simulation, mdot: f64) -> (ApertureProfile, AngularDistributio
             (k + 1) as f64 / RADIAL_BINS as f64,
         );
         r_over_a.push(0.5 * (lo + hi));
-        let area = std::f64::consts::PI * a * a * (hi * hi - lo * lo);
+        let area = plan.geometry.symmetry.ring_area(a * lo, a * hi);
         flux.push(m * plan.fnum / (time * area));
     }
     let relative = flux.iter().map(|x| x / mean).collect();
@@ -537,6 +549,12 @@ fn profiles(sim: &Simulation, mdot: f64) -> (ApertureProfile, AngularDistributio
             peaking_factor_ci95: ang.peaking_factor_ci95,
             free_molecular_over_cosine_law: theory,
             free_molecular_peaking_factor: theory_peak,
+            intensity_measure: match crate::beam::measure_of(plan) {
+                crate::beam::AngularMeasure::SolidAngle => "per steradian",
+                crate::beam::AngularMeasure::PlaneAngle => {
+                    "per radian of the in-plane angle and per metre of slit length"
+                }
+            },
         },
     )
 }

@@ -120,6 +120,12 @@ const TABLE: &[(&str, &str, &str, &[&str])] = &[
         &["aperture.shape", "square", "circle"],
     ),
     (
+        "slit given a diameter",
+        "shape = \"circle\"",
+        "shape = \"slit\"",
+        &["aperture.diameter", "slit", "width"],
+    ),
+    (
         "bad uncertainty",
         "target_uncertainty = 0.01",
         "target_uncertainty = 0",

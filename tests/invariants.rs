@@ -4,13 +4,13 @@
 
 use crate::util::fm_case;
 use kinflux::case;
-use kinflux::geometry::{Axisymmetric, SurfaceRole};
+use kinflux::geometry::{Domain, SurfaceRole, Symmetry};
 use kinflux::mover::{advance, Fate, Flight, WallReflection};
 
 /// `advance` with the diffuse-emission flag discarded.
 #[allow(clippy::too_many_arguments)]
 fn advance_checked<F: FnMut(f64, f64)>(
-    geom: &Axisymmetric,
+    geom: &Domain,
     wall: &WallReflection,
     f: &mut Flight,
     dt: f64,
@@ -37,19 +37,26 @@ use kinflux::simulation::Simulation;
 use rand::rngs::SmallRng;
 use rand::{Rng, SeedableRng};
 
-/// Random rays in thin and thick partitions, diffuse, specular and mixed walls: no flight ever
-/// ends inside the solid, and every crossing of the partition's exit plane is inside the hole.
+/// Random rays in thin and thick partitions, diffuse, specular and mixed walls, about an axis
+/// (holes and tubes) and across a mirror plane (slits and channels): no flight ever ends inside
+/// the solid, and every crossing of the partition's exit plane is inside the opening.
 #[test]
 fn random_rays_never_enter_walls_or_leak_past_the_partition() {
     let mut rng = SmallRng::seed_from_u64(2024);
-    for case in 0..40 {
+    for case in 0..60 {
+        let symmetry = if case < 40 {
+            Symmetry::Axisymmetric
+        } else {
+            Symmetry::Planar
+        };
         let a = 1.0;
         let t = if case % 4 == 0 {
             0.0
         } else {
             rng.random_range(0.05..6.0)
         };
-        let geom = Axisymmetric::new(
+        let geom = Domain::new(
+            symmetry,
             a,
             t,
             rng.random_range(0.6..4.0),
@@ -114,7 +121,7 @@ fn random_rays_never_enter_walls_or_leak_past_the_partition() {
 /// Molecules reaching an outer boundary leave through it, on the right side of the partition.
 #[test]
 fn boundary_exits_are_on_the_right_side() {
-    let geom = Axisymmetric::new(1.0, 1.0, 2.0, 2.0, 3.0);
+    let geom = Domain::new(Symmetry::Axisymmetric, 1.0, 1.0, 2.0, 2.0, 3.0);
     let wall = WallReflection {
         accommodation: 1.0,
         sigma: 1.0,

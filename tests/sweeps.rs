@@ -332,8 +332,8 @@ const BAD_SWEEPS: &[(&str, &str, &[&str])] = &[
     ),
     (
         "unit mismatch in a range",
-        "base = \"base.toml\"\n[axes]\n\"upstream.pressure\" = { from = \"1 Pa\", to = \"10 mbar\", points = 3 }\n",
-        &["sweep.toml", "to", "10 mbar", "same unit"],
+        "base = \"base.toml\"\n[axes]\n\"upstream.pressure\" = { from = \"1 Pa\", to = \"300 K\", points = 3 }\n",
+        &["sweep.toml", "to", "300 K", "same quantity as `from` (Pa)"],
     ),
     (
         "zipped axes of different lengths",

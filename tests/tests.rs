@@ -13,6 +13,7 @@ mod free_molecular;
 mod gas;
 mod invariants;
 mod maxwell;
+mod slits;
 mod slurm;
 mod sweeps;
 mod transition;
