@@ -345,6 +345,9 @@ pub fn beam_chart(path: &Path, sim: &Simulation, fields: &Fields) -> Result<()> 
         c.configure_mesh()
             .x_desc("distance beyond the exit plane / aperture radius")
             .y_desc("n / n1 (upstream)")
+            .x_labels(8)
+            .y_labels(8)
+            .x_label_formatter(&|x| compact(*x))
             .y_label_formatter(&|y| format!("{y:.1e}"))
             .draw()
             .map_err(|e| fail(path, e))?;
@@ -394,6 +397,17 @@ pub fn beam_chart(path: &Path, sim: &Simulation, fields: &Fields) -> Result<()> 
         root.present().map_err(|e| fail(path, e))?;
     }
     crate::output::write_atomic(path, svg.as_bytes())
+}
+
+/// A short tick label: three significant digits, no trailing zeros.
+fn compact(x: f64) -> String {
+    let digits = (2 - x.abs().log10().floor() as i32).max(0) as usize;
+    let text = format!("{x:.digits$}");
+    if text.contains('.') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    }
 }
 
 /// Rasterise an SVG chart to PNG (resvg; text with the system's fonts). Returns false, writing
