@@ -100,10 +100,12 @@ pub struct Angular {
 /// plane downstream in bin k over `time` seconds of sampling; `fnum` converts to real molecules.
 ///
 /// The relative standard error of a bin is sqrt(Σw²)/Σw (compound Poisson statistics of
-/// independent crossings: exact for free-molecular flow, where every crossing belongs to a
-/// different molecule's flight; with collisions, crossings close in time are correlated and the
-/// interval is a lower bound). The ratio's uncertainty ignores that of the total, which is
-/// smaller by the square root of the bin's share.
+/// independent crossings. Free-molecular crossings are independent except for the clones of the
+/// radial weighting, which repeat their original's direction: measured over 14 seeds each of a
+/// thin orifice and an L/R = 2 tube, the deviations scatter 1.0 to 1.2 times the stated standard
+/// error. With collisions, crossings close in time are correlated and the interval is a lower
+/// bound.) The ratio's uncertainty ignores that of the total, which is smaller by the square
+/// root of the bin's share.
 pub fn angular(
     measure: AngularMeasure,
     counts: &[f64],

@@ -809,6 +809,12 @@ fn print_estimate(plan: &Plan) {
         },
         e.clausing_factor
     );
+    if !slit {
+        println!(
+            "free-molecular beam      peaking factor 1/W = {:.4} (Clausing's angular distribution)",
+            1.0 / e.clausing_factor
+        );
+    }
     let fm_q = kinflux::units::TradeFlow::from_molecules(
         e.free_molecular_net_mass_flow / c.gas.mean_mass(),
         c.upstream.temperature,
@@ -909,6 +915,42 @@ fn print_result(s: &Summary) {
             "  {:<6} {:.5e} kg/s, {:.5e} mol/s (W_i = {:.5})",
             sp.name, sp.mass_flow_rate_kg_s, sp.molar_flow_rate_mol_s, sp.reduced_flow_rate
         );
+    }
+    let p = &s.plume;
+    let slit = f.basis != "whole aperture";
+    if p.molecules_per_s > 0.0 {
+        println!(
+            "  beam                   centreline {:.4e} ± {:.1e} {} over θ < {}°, peaking factor {:.3} ± {:.3} (free-molecular {:.3} over the cone, {:.3} on the axis)",
+            p.centreline_intensity_per_s_sr,
+            p.centreline_intensity_ci95_per_s_sr,
+            if slit { "/(s·rad·m)" } else { "/(s·sr)" },
+            p.centreline_cone_deg,
+            p.peaking_factor,
+            p.peaking_factor_ci95,
+            p.free_molecular_over_cosine_law[0],
+            p.free_molecular_peaking_factor
+        );
+    }
+    if let Some(f) = &s.beam.far_field {
+        println!(
+            "  axis far field         n ∝ (z − t)^−{:.2} ± {:.2} over {:.3e}–{:.3e} m, n = {:.3} n1 {}",
+            f.density_decay_exponent,
+            f.density_decay_exponent_ci95,
+            f.from_exit_plane_m,
+            f.to_exit_plane_m,
+            f.inverse_square_coefficient,
+            if slit { "a/(z − t)" } else { "(a/(z − t))²" }
+        );
+        if let (Some(sp), Some(e), Some(x)) = (
+            &s.beam.light_species,
+            f.light_enrichment,
+            f.light_mole_fraction,
+        ) {
+            println!(
+                "  axis composition       {sp} mole fraction {x:.4} on the far axis, enrichment {e:.4} (flux through the aperture: {:.4})",
+                s.beam.aperture_light_enrichment.unwrap_or(f64::NAN)
+            );
+        }
     }
     println!("caution: {}", s.caution);
 }

@@ -241,9 +241,11 @@ pub fn field_map(
 /// the cosine law of a thin orifice of the same throughput, with 95 % bars, the cosine law
 /// itself and Clausing's free-molecular theory for the aperture; right, the axis number density
 /// over the upstream density against the distance beyond the exit plane (log–log), with the
-/// far-field power-law fit and the collisionless thin-orifice curve (1 − d/sqrt(d² + a²))/2.
+/// far-field power-law fit and the collisionless thin-orifice curve (1 − d/sqrt(d² + a²))/2
+/// (a thin slit: atan(a/d)/π).
 pub fn beam_chart(path: &Path, sim: &Simulation, fields: &Fields) -> Result<()> {
     let plan = &sim.plan;
+    let slit = plan.geometry.symmetry == crate::geometry::Symmetry::Planar;
     let ang = crate::beam::angular_of_run(plan, &sim.flux);
     let (theory, _) = crate::beam::free_molecular_reference(plan);
     let axis = crate::beam::axis_profile(plan, fields);
@@ -291,7 +293,11 @@ pub fn beam_chart(path: &Path, sim: &Simulation, fields: &Fields) -> Result<()> 
             BLACK.mix(0.5).stroke_width(1),
         ))
         .map_err(|e| fail(path, e))?
-        .label("cosine law (thin orifice, Knudsen)")
+        .label(if slit {
+            "in-plane cosine law (thin slit, Knudsen)"
+        } else {
+            "cosine law (thin orifice, Knudsen)"
+        })
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.mix(0.5)));
         c.draw_series(LineSeries::new(
             ang.theta_deg
@@ -302,7 +308,11 @@ pub fn beam_chart(path: &Path, sim: &Simulation, fields: &Fields) -> Result<()> 
             RED.stroke_width(2),
         ))
         .map_err(|e| fail(path, e))?
-        .label("free-molecular theory (Clausing), bin averages")
+        .label(if slit {
+            "free-molecular theory (thin slit), bin averages"
+        } else {
+            "free-molecular theory (Clausing), bin averages"
+        })
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], RED.stroke_width(2)));
         let points: Vec<(f64, f64, f64)> = ang
             .theta_deg
@@ -364,18 +374,32 @@ pub fn beam_chart(path: &Path, sim: &Simulation, fields: &Fields) -> Result<()> 
         c.configure_mesh()
             .x_desc("distance beyond the exit plane / aperture radius")
             .y_desc("n / n1 (upstream)")
+            .x_labels(8)
+            .y_labels(8)
+            .x_label_formatter(&|x| compact(*x))
             .y_label_formatter(&|y| format!("{y:.1e}"))
             .draw()
             .map_err(|e| fail(path, e))?;
+        // collisionless theory: n/n1 = Ω/4π, the opening's solid angle seen from the axis point
+        // (d in units of a): a disc 2π(1 − d/sqrt(d² + 1)), an infinite strip 4 atan(1/d)
         let curve: Vec<(f64, f64)> = (0..=100)
             .map(|k| {
                 let d = x0 * (x1 / x0).powf(k as f64 / 100.0);
-                (d, 0.5 * (1.0 - d / (d * d + 1.0).sqrt()))
+                let n = if slit {
+                    (1.0 / d).atan() / std::f64::consts::PI
+                } else {
+                    0.5 * (1.0 - d / (d * d + 1.0).sqrt())
+                };
+                (d, n)
             })
             .collect();
         c.draw_series(LineSeries::new(curve, BLACK.mix(0.5)))
             .map_err(|e| fail(path, e))?
-            .label("collisionless thin orifice")
+            .label(if slit {
+                "collisionless thin slit"
+            } else {
+                "collisionless thin orifice"
+            })
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.mix(0.5)));
         if let Some(f) = &far {
             // The fit through the window's geometric means, drawn over the window.
@@ -413,6 +437,17 @@ pub fn beam_chart(path: &Path, sim: &Simulation, fields: &Fields) -> Result<()> 
         root.present().map_err(|e| fail(path, e))?;
     }
     crate::output::write_atomic(path, svg.as_bytes())
+}
+
+/// A short tick label: three significant digits, no trailing zeros.
+fn compact(x: f64) -> String {
+    let digits = (2 - x.abs().log10().floor() as i32).max(0) as usize;
+    let text = format!("{x:.digits$}");
+    if text.contains('.') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    }
 }
 
 /// Rasterise an SVG chart to PNG (resvg; text with the system's fonts). Returns false, writing

@@ -161,8 +161,10 @@ pub struct AngularDistribution {
     pub flux_per_solid_angle_over_cosine_law: Vec<f64>,
     /// Molecules (real) leaving downstream per second, the normalisation.
     pub molecules_per_s: f64,
-    /// 95 % half-width of each bin's ratio (Poisson statistics of the weighted crossings; a
-    /// lower bound with collisions, exact without).
+    /// 95 % half-width of each bin's ratio (Poisson statistics of the weighted crossings; with
+    /// collisions a lower bound). Measured free-molecular, over 14 seeds each of a thin orifice
+    /// and an L/R = 2 tube, the deviations scatter 1.0 to 1.2 times the stated standard error:
+    /// the clones of the radial weighting cross in the same direction as their originals.
     pub flux_per_solid_angle_over_cosine_law_ci95: Vec<f64>,
     /// Half-angle of the cone about the axis over which the centreline intensity is averaged
     /// (the first bin), degrees.

@@ -31,8 +31,9 @@ fn thin_orifice_into_vacuum_gives_knudsen_effusion() {
     );
     // Knudsen's cosine law of effusion (Knudsen 1909): molecules leave a thin orifice with
     // dN/dΩ ∝ cos θ, so every 5° bin holds its cosine-law share within its statistical error
-    // (2.3 × the reported 95 % half-width, i.e. 4.6σ, so that 18 bins pass together with
-    // probability above 99.9 %), and within 5 % (the bins hold ≥ 10⁴ molecules).
+    // (2.6 × the reported 95 % half-width: 4.3σ even if the true error is the 1.2 × the stated
+    // one measured over seeds (see `summary::AngularDistribution`), so that 18 bins pass
+    // together with probability above 99.9 %), and within 5 % (the bins hold ≥ 10⁴ molecules).
     let p = &s.plume;
     for ((theta, r), ci) in p
         .theta_deg
@@ -41,7 +42,7 @@ fn thin_orifice_into_vacuum_gives_knudsen_effusion() {
         .zip(&p.flux_per_solid_angle_over_cosine_law_ci95)
     {
         assert!(
-            (r - 1.0).abs() < 0.05 && (r - 1.0).abs() < 2.3 * ci,
+            (r - 1.0).abs() < 0.05 && (r - 1.0).abs() < 2.6 * ci,
             "θ = {theta}°: {r} ± {ci} of the cosine law"
         );
     }
@@ -51,12 +52,12 @@ fn thin_orifice_into_vacuum_gives_knudsen_effusion() {
         .iter()
         .all(|&x| (x - 1.0).abs() < 1e-9));
     // Centreline: peaking factor 1 for the ideal thin orifice (I(0) = Ṅ/π), within the
-    // reported interval (2.3 half-widths) and 5 %.
+    // reported interval (2.6 half-widths) and 5 %.
     eprintln!(
         "thin orifice: peaking factor {:.4} ± {:.4}, centreline intensity {:.4e} /(s sr), Ṅ {:.4e} /s",
         p.peaking_factor, p.peaking_factor_ci95, p.centreline_intensity_per_s_sr, p.molecules_per_s
     );
-    assert!((p.peaking_factor - 1.0).abs() < 2.3 * p.peaking_factor_ci95);
+    assert!((p.peaking_factor - 1.0).abs() < 2.6 * p.peaking_factor_ci95);
     assert!((p.peaking_factor - 1.0).abs() < 0.05);
     assert!(
         (p.centreline_intensity_per_s_sr * std::f64::consts::PI / p.molecules_per_s
@@ -97,7 +98,8 @@ fn thin_orifice_with_back_pressure_gives_one_minus_pressure_ratio() {
 /// tube (Clausing 1930, Z. Physik 66; direct + wall-emission form as in Dayton 1956 — citation
 /// details from memory; `analytic::TubeBeam`, itself checked against a test-particle Monte
 /// Carlo in tests/analytic.rs): every 5° bin up to 60° within 3 % of the theory's bin average
-/// (and all bins within 2.3 reported half-widths, 4.6σ), and the centreline peaking factor
+/// (and all bins within 2.6 reported half-widths, over 4σ of the scatter measured over seeds),
+/// and the centreline peaking factor
 /// (mean over the cone θ < 5°) within 3 % of the theory's mean over the same cone.
 #[test]
 fn short_tubes_give_clausing_factors() {
@@ -128,7 +130,7 @@ fn short_tubes_give_clausing_factors() {
             .enumerate()
         {
             assert!(
-                (r - th).abs() < 2.3 * ci,
+                (r - th).abs() < 2.6 * ci,
                 "L/R = {l_over_r}, bin {k}: {r} ± {ci}, theory {th}"
             );
             if k < 12 {

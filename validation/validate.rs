@@ -145,6 +145,9 @@ enum Quantity {
     /// (W − 1)/δ of the run, δ = p1 a/(μ1 v0) its rarefaction parameter: the slope of W(δ)
     /// from the free-molecular limit W = 1.
     NearFreeMolecularSlope,
+    /// Centreline peaking factor of the run's beam (`plume.peaking_factor`, the mean over the
+    /// cone θ < 5° over the cosine law of the same throughput).
+    PeakingFactor,
 }
 
 impl Quantity {
@@ -158,6 +161,9 @@ impl Quantity {
         }
         if text == "near_free_molecular_slope" {
             return Ok(Quantity::NearFreeMolecularSlope);
+        }
+        if text == "peaking_factor" {
+            return Ok(Quantity::PeakingFactor);
         }
         if let Some(sp) = text.strip_prefix("species_reduced_flow_rate:") {
             if !sp.trim().is_empty() {
@@ -176,7 +182,8 @@ impl Quantity {
         }
         bail!(
             "quantity `{text}`: expected reduced_flow_rate, species_reduced_flow_rate:X, \
-             species_molar_ratio:A/B, near_free_molecular_slope or analytic_clausing_factor"
+             species_molar_ratio:A/B, near_free_molecular_slope, peaking_factor or \
+             analytic_clausing_factor"
         )
     }
 
@@ -711,8 +718,24 @@ fn resolve_reference(spec: &CheckSpec, case: &Case) -> Result<Option<Reference>>
             kinflux::analytic::clausing_factor(l_over_r),
             format!("kinflux::analytic::clausing_factor({})", fmt_num(l_over_r)),
         ),
+        ReferenceSpec::Analytic(f) if f == "clausing_beam_centre" => {
+            // Clausing's tube beam averaged over the first polar bin, the cone the simulation's
+            // peaking factor is measured in.
+            let (lo, hi) = kinflux::beam::bin_edges(0);
+            (
+                kinflux::analytic::TubeBeam::new(l_over_r).bin_average(lo, hi),
+                format!(
+                    "kinflux::analytic::TubeBeam::new({}).bin_average(0°, {}°)",
+                    fmt_num(l_over_r),
+                    kinflux::beam::POLAR_BIN_DEG
+                ),
+            )
+        }
         ReferenceSpec::Analytic(f) => {
-            bail!("check `{name}`: reference \"{f}\": expected a number or \"clausing_factor\"")
+            bail!(
+                "check `{name}`: reference \"{f}\": expected a number, \"clausing_factor\" or \
+                 \"clausing_beam_centre\""
+            )
         }
     };
     if !(value.is_finite() && value != 0.0) {
@@ -893,6 +916,14 @@ fn evaluate(p: &Prepared, run: Option<&RunRecord>, quick: bool) -> Result<CheckR
             };
             (ratio, hw, analytic)
         }
+        (Quantity::PeakingFactor, Some(r)) => {
+            let pl = &r.summary.plume;
+            (
+                pl.peaking_factor,
+                pl.peaking_factor_ci95,
+                pl.free_molecular_over_cosine_law.first().copied(),
+            )
+        }
         (Quantity::NearFreeMolecularSlope, Some(r)) => {
             let s = &r.summary;
             let delta = s.regime.rarefaction_parameter;
@@ -973,7 +1004,10 @@ fn evaluate(p: &Prepared, run: Option<&RunRecord>, quick: bool) -> Result<CheckR
     if p.case.walls.accommodation < 1.0
         && p.case.aperture.thickness > 0.0
         && analytic_layer.is_some()
-        && p.quantity == Quantity::ReducedFlowRate
+        && matches!(
+            p.quantity,
+            Quantity::ReducedFlowRate | Quantity::PeakingFactor
+        )
     {
         remarks.push(format!(
             "the analytic layer's value assumes diffuse walls (Clausing); it does not apply at \
