@@ -5,7 +5,7 @@
 //! Slurm is running the test says plainly that it was skipped; with `KINFLUX_REQUIRE_SLURM=1`
 //! (set by CI) a missing Slurm is a failure instead.
 
-use crate::sweeps::{csv_rows, ok, BASE};
+use crate::sweeps::{base, csv_rows, ok};
 use crate::util::{run_in, temp_dir, write};
 use std::process::Command;
 use std::time::{Duration, Instant};
@@ -34,7 +34,7 @@ fn sweep_through_sbatch_matches_the_local_run() {
         return;
     }
     let dir = temp_dir();
-    write(dir.path(), "base.toml", BASE);
+    write(dir.path(), "base.toml", &base());
     // three free-molecular cases, the last one as 2 statistical replicas: 4 array tasks
     write(
         dir.path(),

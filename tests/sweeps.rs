@@ -9,31 +9,20 @@ use crate::util::{run_in, temp_dir, write};
 use serde_json::Value;
 use std::path::Path;
 
-/// A small free-molecular argon orifice case (0.2 mm thin orifice into vacuum, 295 K).
-pub const BASE: &str = r#"
-title = "sweep test base"
-[gas]
-species = { Ar = 1.0 }
-[upstream]
-pressure = "0.5 Pa"
-temperature = "295 K"
-[downstream]
-pressure = "0 Pa"
-temperature = "295 K"
-[aperture]
-shape = "circle"
-diameter = "0.2 mm"
-thickness = "0 mm"
-[walls]
-temperature = "295 K"
-accommodation = 1.0
-[solver]
-collisions = false
-target_uncertainty = 0.01
-max_wall_time = "5 min"
-molecules = 20000
-seed = 3
-"#;
+/// A small free-molecular argon case (0.2 mm thin orifice into vacuum, 295 K, 20 000
+/// molecules, ±1 % target) as a sweep base.
+pub fn base() -> String {
+    crate::util::fm_case(
+        "{ Ar = 1.0 }",
+        "0.5 Pa",
+        "0 Pa",
+        "0.2 mm",
+        "0 mm",
+        "molecules = 20000",
+    )
+    .replace("target_uncertainty = 0.003", "target_uncertainty = 0.01")
+    .replace("max_wall_time = \"2 min\"", "max_wall_time = \"5 min\"")
+}
 
 const BOLTZMANN: f64 = 1.380_649e-23;
 /// Argon: 39.948 g/mol (IUPAC standard atomic weight) / Avogadro.
@@ -89,7 +78,7 @@ pub fn num(row: &std::collections::HashMap<String, String>, k: &str) -> f64 {
 #[test]
 fn pressure_sweep_gives_knudsen_effusion_at_every_point() {
     let dir = temp_dir();
-    write(dir.path(), "base.toml", BASE);
+    write(dir.path(), "base.toml", &base());
     // seeds zipped with the pressures, so the three points are independent samples
     write(
         dir.path(),
@@ -157,7 +146,7 @@ zip = [["upstream.pressure", "solver.seed"]]
 #[test]
 fn collect_lists_missing_cases_instead_of_dropping_them() {
     let dir = temp_dir();
-    write(dir.path(), "base.toml", BASE);
+    write(dir.path(), "base.toml", &base());
     write(
         dir.path(),
         "sweep.toml",
@@ -189,7 +178,7 @@ fn collect_lists_missing_cases_instead_of_dropping_them() {
 #[test]
 fn merged_replicas_shrink_the_interval_like_one_over_root_n() {
     let dir = temp_dir();
-    write(dir.path(), "base.toml", BASE);
+    write(dir.path(), "base.toml", &base());
     let n = 4;
     let mut single = Vec::new();
     for k in 1..=n {
@@ -268,7 +257,7 @@ fn merged_replicas_shrink_the_interval_like_one_over_root_n() {
 #[test]
 fn free_molecular_sizing_returns_the_knudsen_diameter() {
     let dir = temp_dir();
-    write(dir.path(), "base.toml", BASE);
+    write(dir.path(), "base.toml", &base());
     let target = 4.0e-11; // kg/s
     let out = ok(&run_in(
         dir.path(),
@@ -360,7 +349,7 @@ const BAD_SWEEPS: &[(&str, &str, &[&str])] = &[
 #[test]
 fn bad_sweep_files_get_clear_errors_and_exit_code_2() {
     let dir = temp_dir();
-    write(dir.path(), "base.toml", BASE);
+    write(dir.path(), "base.toml", &base());
     for (what, text, fragments) in BAD_SWEEPS {
         write(dir.path(), "sweep.toml", text);
         let out = run_in(
@@ -386,8 +375,8 @@ fn slurm_script_quotes_paths_and_keeps_case_text_out() {
     let dir = temp_dir();
     // a title that would run commands if it reached the shell
     let evil_title = "x $(touch PWNED1) `touch PWNED2` '; touch PWNED3; '\\nline two \\\"q\\\"";
-    let base = BASE.replace(
-        "title = \"sweep test base\"",
+    let base = base().replace(
+        "title = \"test case\"",
         &format!("title = \"{evil_title}\""),
     );
     write(dir.path(), "base.toml", &base);

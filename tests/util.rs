@@ -87,3 +87,53 @@ pub fn least_squares_slope(xs: &[f64], ys: &[f64]) -> f64 {
     let sxx: f64 = xs.iter().map(|x| (x - mx).powi(2)).sum();
     sxy / sxx
 }
+
+/// Run a collisionless case `text` for `steps` steps and compare the density of the cells on the
+/// axis (the first radial row) with collisionless theory, `frac(d)` being the fraction of
+/// directions from the axis point at distance d from the plate that see the upstream gas
+/// through the opening: n = n1 (1 − frac) upstream, n1 frac downstream. Cells closer than 0.4 a
+/// are skipped (too close to the opening for a cell average). Each cell must agree within
+/// `tolerance`, or within four standard errors of its sampled count where that is wider (the
+/// sparse far cells), the count divided by `correlation` (2 where delayed clones repeat their
+/// originals' trajectories, 1 without radial weighting). Returns the number of cells checked.
+pub fn check_axis_density(
+    text: &str,
+    steps: u64,
+    frac: impl Fn(f64) -> f64,
+    tolerance: f64,
+    correlation: f64,
+) -> usize {
+    let c = case::parse(text, "t.toml", &[]).expect("valid case");
+    let mut sim = Simulation::new(Plan::new(&c).expect("plan"));
+    while sim.step < steps {
+        sim.step();
+    }
+    let f = sim.fields.fields(&sim.plan);
+    let g = &sim.plan.grid;
+    let a = c.aperture.radius();
+    let n1 = c.upstream.pressure / (kinflux::constants::BOLTZMANN * c.upstream.temperature);
+    let nr = g.r.len();
+    let mut checked = 0;
+    for iz in 0..g.z.len() {
+        let z = g.z.center(iz);
+        let d = z.abs();
+        if d < 0.4 * a {
+            continue;
+        }
+        let expected = if z < 0.0 {
+            n1 * (1.0 - frac(d))
+        } else {
+            n1 * frac(d)
+        };
+        let got = f.number_density[iz * nr];
+        let samples = f.samples[iz * nr];
+        let tol = (4.0 * (correlation / samples).sqrt()).max(tolerance);
+        assert!(
+            (got / expected - 1.0).abs() < tol,
+            "z = {:.2} a: n = {got:e}, theory {expected:e} ({samples} samples, tolerance {tol})",
+            z / a
+        );
+        checked += 1;
+    }
+    checked
+}

@@ -58,6 +58,15 @@ fn series<'a>(plan: &Plan, rows: &'a [&'a Row]) -> Vec<(String, Vec<&'a Row>)> {
     out
 }
 
+/// A chart title that says how many cases have no point on it.
+fn caption(title: &str, missing: usize) -> String {
+    if missing > 0 {
+        format!("{title} ({missing} case(s) without result not drawn)")
+    } else {
+        title.to_string()
+    }
+}
+
 fn log_range(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
     let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
     for v in values.filter(|v| v.is_finite() && *v > 0.0) {
@@ -120,13 +129,11 @@ fn w_vs_delta(path: &Path, plan: &Plan, rows: &[&Row], missing: usize) -> Result
     {
         let root = SVGBackend::with_string(&mut svg, (960, 600)).into_drawing_area();
         root.fill(&WHITE).map_err(|e| fail(path, e))?;
-        let caption = if missing > 0 {
-            format!("Reduced flow rate W = Ṁ/Ṁ_fm ({missing} case(s) without result not drawn)")
-        } else {
-            "Reduced flow rate W = Ṁ/Ṁ_fm against rarefaction".to_string()
-        };
         let mut c = ChartBuilder::on(&root)
-            .caption(caption, ("sans-serif", 22))
+            .caption(
+                caption("Reduced flow rate W = Ṁ/Ṁ_fm against rarefaction", missing),
+                ("sans-serif", 22),
+            )
             .margin(14)
             .x_label_area_size(50)
             .y_label_area_size(70)
@@ -222,13 +229,11 @@ fn mass_flow_vs_pressure(path: &Path, plan: &Plan, rows: &[&Row], missing: usize
     {
         let root = SVGBackend::with_string(&mut svg, (960, 600)).into_drawing_area();
         root.fill(&WHITE).map_err(|e| fail(path, e))?;
-        let caption = if missing > 0 {
-            format!("Mass flow rate against upstream pressure ({missing} case(s) without result not drawn)")
-        } else {
-            "Mass flow rate against upstream pressure".to_string()
-        };
         let mut c = ChartBuilder::on(&root)
-            .caption(caption, ("sans-serif", 22))
+            .caption(
+                caption("Mass flow rate against upstream pressure", missing),
+                ("sans-serif", 22),
+            )
             .margin(14)
             .x_label_area_size(50)
             .y_label_area_size(90)
