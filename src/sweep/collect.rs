@@ -45,8 +45,10 @@ pub struct Row {
     pub status: Status,
     /// Why a case is not ok (which replicas are missing, the failure message).
     pub note: String,
-    /// Gas label, reservoir pressures (Pa), upstream temperature (K), aperture (m).
+    /// Gas label, reservoir pressures (Pa), upstream temperature (K), aperture shape ("circle"
+    /// or "slit") and size (m: a hole's diameter or a slit's width; a slit's flows are per metre).
     pub gas: String,
+    pub shape: String,
     pub upstream_pressure_pa: f64,
     pub downstream_pressure_pa: f64,
     pub upstream_temperature_k: f64,
@@ -132,6 +134,17 @@ fn collect_case(plan_dir: &Path, plan: &Plan, c: &PlannedCase, warnings: &mut Ve
         status: Status::Missing,
         note: String::new(),
         gas: resolved.as_ref().map(|r| r.gas.label()).unwrap_or_default(),
+        shape: resolved
+            .as_ref()
+            .map(|r| {
+                if r.aperture.per_unit_length() {
+                    "slit"
+                } else {
+                    "circle"
+                }
+            })
+            .unwrap_or_default()
+            .to_string(),
         upstream_pressure_pa: resolved.as_ref().map_or(f64::NAN, |r| r.upstream.pressure),
         downstream_pressure_pa: resolved
             .as_ref()
@@ -276,7 +289,7 @@ fn results_csv(plan: &Plan, rows: &[Row]) -> String {
         s.push(',');
         s.push_str(&csv_field(&a.key));
     }
-    s.push_str(",replicas,gas,upstream_pressure_pa,downstream_pressure_pa,upstream_temperature_k,diameter_m,thickness_m");
+    s.push_str(",replicas,gas,upstream_pressure_pa,downstream_pressure_pa,upstream_temperature_k,aperture_shape,diameter_m,thickness_m");
     for (name, _, _) in RESULT_COLUMNS {
         s.push(',');
         s.push_str(name);
@@ -294,12 +307,13 @@ fn results_csv(plan: &Plan, rows: &[Row]) -> String {
             s.push_str(&csv_field(parameter(r, &a.key)));
         }
         s.push_str(&format!(
-            ",{},{},{},{},{},{},{}",
+            ",{},{},{},{},{},{},{},{}",
             r.case.replicas,
             csv_field(&r.gas),
             fmt(r.upstream_pressure_pa),
             fmt(r.downstream_pressure_pa),
             fmt(r.upstream_temperature_k),
+            r.shape,
             fmt(r.diameter_m),
             fmt(r.thickness_m)
         ));
@@ -390,6 +404,11 @@ fn write_h5(path: &Path, plan: &Plan, rows: &[Row]) -> Result<Option<PathBuf>> {
             "gas or mixture",
         )?;
         strings(
+            "aperture_shape",
+            rows.iter().map(|r| r.shape.clone()).collect(),
+            "circle (flows of the whole hole) or slit (flows per metre of slit length)",
+        )?;
+        strings(
             "quality_flags",
             rows.iter()
                 .map(|r| r.summary.as_ref().map(quality_flags).unwrap_or_default())
@@ -435,7 +454,7 @@ fn write_h5(path: &Path, plan: &Plan, rows: &[Row]) -> Result<Option<PathBuf>> {
             "diameter",
             rows.iter().map(|r| r.diameter_m).collect(),
             "m",
-            "aperture diameter",
+            "aperture diameter (a slit's width)",
         )?;
         numbers(
             "thickness",
