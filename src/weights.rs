@@ -1,4 +1,6 @@
 //! Axisymmetric radial weighting: how many real molecules one simulated molecule stands for.
+//! (A planar slit domain uses ratio 1: its cells do not grow with the distance from the
+//! mid-plane, so every weight is 1 and nothing is deleted or cloned.)
 //!
 //! Weights are constant over each radial row of the cell grid: a molecule in row j stands for
 //! F_N · w_j real molecules with w_j = 1 + (ratio − 1) r_j/R (r_j the row centre), so the outer,
