@@ -142,7 +142,7 @@ fn w_vs_delta(path: &Path, plan: &Plan, rows: &[&Row], missing: usize) -> Result
         c.configure_mesh()
             .x_desc("rarefaction parameter δ = p₁a/(μ₁v₀) (1)")
             .y_desc("reduced flow rate W (1), bars: 95 %")
-            .x_labels(12)
+            .x_labels(6)
             .x_label_formatter(&|x| format!("{x:.1e}"))
             .draw()
             .map_err(|e| fail(path, e))?;
