@@ -1,9 +1,11 @@
 //! Storage of simulated molecules as a structure of arrays.
 //!
 //! Each molecule has an axial position z, a radius r ≥ 0, three velocity components in its
-//! local frame (v_z, v_r, v_θ), a rotational energy (J) and a species index. Arrays always have equal length; a
-//! molecule marked [`DEAD`] is removed by [`Molecules::compact`], which keeps the order of the
-//! survivors (order matters for reproducibility).
+//! local frame (v_z, v_r, v_θ), a rotational energy (J) and a species index. Arrays always have
+//! equal length; a molecule marked [`DEAD`] is removed by [`Molecules::compact`] (or by the
+//! DSMC mode's sort), which keeps the order of the survivors (order matters for
+//! reproducibility). Arrays grow by an eighth, not by doubling ([`make_room`]): they are most
+//! of a run's memory.
 
 use crate::mover::Flight;
 
@@ -34,15 +36,15 @@ impl Molecules {
         self.z.is_empty()
     }
 
-    /// Reserve room for `n` more molecules.
+    /// Make room for `n` more molecules (see [`make_room`]).
     pub fn reserve(&mut self, n: usize) {
-        self.z.reserve(n);
-        self.r.reserve(n);
-        self.vz.reserve(n);
-        self.vr.reserve(n);
-        self.vt.reserve(n);
-        self.erot.reserve(n);
-        self.species.reserve(n);
+        make_room(&mut self.z, n);
+        make_room(&mut self.r, n);
+        make_room(&mut self.vz, n);
+        make_room(&mut self.vr, n);
+        make_room(&mut self.vt, n);
+        make_room(&mut self.erot, n);
+        make_room(&mut self.species, n);
     }
 
     /// Append a molecule.
@@ -99,4 +101,13 @@ impl Molecules {
 
     /// Bytes held per molecule by the arrays (struct-of-arrays footprint).
     pub const BYTES_PER_MOLECULE: usize = 6 * 8 + 1;
+}
+
+/// Make room in `v` for `n` more elements, growing by an eighth of the length (or `n` if more)
+/// instead of doubling: the molecule arrays are most of a run's memory and a steady run's
+/// population drifts by a few per cent, so doubling would leave up to half of them unused.
+pub fn make_room<T>(v: &mut Vec<T>, n: usize) {
+    if v.len() + n > v.capacity() {
+        v.reserve_exact(n.max(v.len() / 8));
+    }
 }

@@ -1,12 +1,16 @@
 //! The step loop: one simulation of one case, stage by stage.
 //!
 //! A step is a readable list of stages: move (wall hits, aperture counting, radial
-//! reweighting) → compact → inject from the reservoirs → release delayed clones → sort by cell
-//! → collide → record the flux → sample the fields (after start-up). The move runs in parallel over fixed chunks of [`CHUNK`]
-//! molecules and the collisions over fixed blocks of cells, each work unit with its own random
-//! stream keyed by (seed, step, stage, unit); results are merged in unit order, so a run is
-//! bit-identical for any number of threads. Invariants: after every step no molecule lies
-//! inside a wall or outside the domain, and the particle balance
+//! reweighting) → compact (free-molecular mode) → inject from the reservoirs → release delayed
+//! clones → sort by cell (DSMC mode; the sort also drops the molecules that left) → collide →
+//! record the flux → sample the fields (after start-up). The move runs in parallel over fixed
+//! chunks of [`CHUNK`] molecules, the collisions and the sampling over fixed blocks of cells,
+//! each work unit with its own random stream keyed by (seed, step, stage, unit); results are
+//! merged in unit order, so a run is bit-identical for any number of threads. The sort is a
+//! stable counting sort, whose result is unique however it is split between threads. Buffers
+//! that scale with the molecules (sort keys, one spare column per element type, partial field
+//! sums) live in the simulation and are reused from step to step. Invariants: after every step
+//! no molecule lies inside a wall or outside the domain, and the particle balance
 //! `initial + injected + released − left − deleted = population` holds exactly.
 
 use crate::collide::{collide_cell, CellMolecules, CollisionStats, Scratch};
@@ -15,7 +19,7 @@ use crate::geometry::SurfaceRole;
 use crate::monitor::{batch_means, BatchEstimate, StopReason};
 use crate::mover::{advance, Fate, Flight};
 use crate::numerics::{Plan, CHUNK};
-use crate::particles::{Molecules, DEAD};
+use crate::particles::{make_room, Molecules, DEAD};
 use crate::sample::FieldSampler;
 use crate::streams::{stream, Stage};
 use crate::weights::CLONE_DELAY_MAX;
@@ -23,8 +27,13 @@ use rand::Rng;
 use rayon::prelude::*;
 use std::time::{Duration, Instant};
 
-/// Cells per collision work block (fixed, so results do not depend on the thread count).
+/// Cells per collision and sampling work block (fixed, so results do not depend on the thread
+/// count).
 pub const CELL_BLOCK: usize = 64;
+
+/// Molecules per work block of the free-molecular field sampling (fixed, like [`CHUNK`]; each
+/// block has partial sums over all cells, so blocks are larger than the move's chunks).
+pub const SAMPLE_BLOCK: usize = 4 * CHUNK;
 
 /// A clone waiting for release (see `weights`).
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -82,13 +91,16 @@ impl MoveReport {
 /// energy, species) and the report of their entry flights.
 type InflowUnit = (u64, Vec<(Flight, f64, u8)>, MoveReport);
 
-/// Per-step buffers of the sort (never part of the saved state).
+/// Buffers of the sort, reused from step to step (never part of the saved state).
 #[derive(Default)]
 struct SortScratch {
+    /// Sort key of each molecule, then its destination.
     keys: Vec<u32>,
+    /// Per-block key counts, then per-block write cursors (block-major).
     counts: Vec<u32>,
-    source: Vec<u32>,
-    spare: Molecules,
+    /// The one spare column per element type that a column is reordered into.
+    f64_column: Vec<f64>,
+    u8_column: Vec<u8>,
 }
 
 /// Wall time spent in each stage of the step (for the benchmark and the run summary).
@@ -165,6 +177,8 @@ pub struct Simulation {
     /// Called about every `.0` of wall time with the simulation, to save a checkpoint.
     pub checkpoint_hook: Option<CheckpointHook>,
     sort: SortScratch,
+    /// Partial field sums of the unsorted (free-molecular) sampling, reused from step to step.
+    sample_partial: Vec<f64>,
 }
 
 impl Simulation {
@@ -205,6 +219,7 @@ impl Simulation {
             interrupt: None,
             checkpoint_hook: None,
             sort: SortScratch::default(),
+            sample_partial: Vec::new(),
         }
     }
 
@@ -248,7 +263,10 @@ impl Simulation {
     pub fn step(&mut self) {
         let mut t = self.times;
         let mut crossings = timed(&mut t.move_s, || self.move_molecules());
-        timed(&mut t.compact_s, || self.molecules.compact());
+        // With collisions the sort drops the dead molecules, after the newcomers joined.
+        if self.plan.collisions.is_none() {
+            timed(&mut t.compact_s, || self.molecules.compact());
+        }
         timed(&mut t.inject_s, || self.inject(&mut crossings));
         // Clones join at the end of their release step, where the time-shifted copy of the
         // original sits at the cloning position; they fly from the next step on.
@@ -269,8 +287,14 @@ impl Simulation {
             .push(self.molecules.len() as u64);
         if self.sampling() {
             let (plan, m, f) = (&self.plan, &self.molecules, &mut self.fields);
+            let (offsets, partial) = (&self.cell_offsets, &mut self.sample_partial);
             timed(&mut t.sample_s, || {
-                f.sample(plan, m, |i| plan.grid.cell(m.z[i], m.r[i]))
+                if plan.collisions.is_some() {
+                    f.sample_sorted(plan, m, offsets, plan.grid.subcells(), CELL_BLOCK)
+                } else {
+                    let cell_of = |i: usize| plan.grid.cell(m.z[i], m.r[i]);
+                    f.sample(plan, m, cell_of, SAMPLE_BLOCK, partial)
+                }
             });
         }
         self.times = t;
@@ -290,6 +314,12 @@ impl Simulation {
         let step = self.step;
         let mut released = 0;
         let mol = &mut self.molecules;
+        mol.reserve(
+            self.pending
+                .iter()
+                .filter(|c| c.release_step <= step)
+                .count(),
+        );
         self.pending.retain(|c| {
             if c.release_step <= step {
                 mol.push(&c.flight, c.erot, c.species);
@@ -414,6 +444,8 @@ impl Simulation {
                 (n, born, rep)
             })
             .collect();
+        self.molecules
+            .reserve(units.iter().map(|u| u.1.len()).sum::<usize>());
         for (n, born, rep) in units {
             self.balance.injected += n;
             self.balance.left_upstream += rep.left_up;
@@ -427,47 +459,87 @@ impl Simulation {
         }
     }
 
-    /// Stage: counting sort of the molecules by (cell, subcell); the arrays are reordered so
-    /// every cell's molecules are contiguous and ordered by subcell.
+    /// Stage: stable counting sort of the molecules by (cell, subcell), dropping the molecules
+    /// marked dead (this is the compaction of the DSMC mode). Every cell's molecules end up
+    /// contiguous, ordered by subcell, and in their previous relative order inside a subcell.
+    ///
+    /// A stable sort has exactly one result, so the split into sort blocks (one per thread)
+    /// cannot change it. The permutation is applied column by column through one reused
+    /// scratch column per element type instead of a second copy of every array: that is what
+    /// keeps the resident memory near the arrays' own footprint.
     fn sort_by_cell(&mut self) {
         let grid = &self.plan.grid;
         let nkeys = grid.cells() * grid.subcells();
         let m = &mut self.molecules;
         let n = m.len();
         let s = &mut self.sort;
+        let grow = n.saturating_sub(s.keys.len());
+        make_room(&mut s.keys, grow);
         s.keys.resize(n, 0);
         s.keys
             .par_chunks_mut(CHUNK)
             .zip(m.z.par_chunks(CHUNK))
             .zip(m.r.par_chunks(CHUNK))
-            .for_each(|((k, z), r)| {
+            .zip(m.species.par_chunks(CHUNK))
+            .for_each(|(((k, z), r), sp)| {
                 for i in 0..k.len() {
-                    k[i] = grid.key(z[i], r[i]) as u32;
+                    k[i] = if sp[i] == DEAD {
+                        DEAD_KEY
+                    } else {
+                        grid.key(z[i], r[i]) as u32
+                    };
                 }
             });
+        // Per-block histograms (block-major), turned into per-block write cursors.
+        let blocks = rayon::current_num_threads().clamp(1, n.div_ceil(CHUNK).max(1));
+        let block_len = n.div_ceil(blocks).max(1);
         s.counts.clear();
-        s.counts.resize(nkeys + 1, 0);
-        for &k in &s.keys {
-            s.counts[k as usize + 1] += 1;
-        }
+        s.counts.resize(blocks * nkeys, 0);
+        s.counts
+            .par_chunks_mut(nkeys)
+            .zip(s.keys.par_chunks(block_len))
+            .for_each(|(c, k)| {
+                for &k in k {
+                    if k != DEAD_KEY {
+                        c[k as usize] += 1;
+                    }
+                }
+            });
+        self.cell_offsets.clear();
+        self.cell_offsets.reserve(nkeys + 1);
+        let mut pos = 0u32;
         for k in 0..nkeys {
-            s.counts[k + 1] += s.counts[k];
-        }
-        self.cell_offsets.clone_from(&s.counts);
-        // source[position] = molecule index (stable: order within a key is kept)
-        s.source.resize(n, 0);
-        {
-            let next = &mut s.counts;
-            for (i, &k) in s.keys.iter().enumerate() {
-                let pos = next[k as usize];
-                s.source[pos as usize] = i as u32;
-                next[k as usize] += 1;
+            self.cell_offsets.push(pos);
+            for b in 0..blocks {
+                let c = &mut s.counts[b * nkeys + k];
+                let count = *c;
+                *c = pos;
+                pos += count;
             }
         }
-        let src = &s.source;
-        let sp = &mut s.spare;
-        gather_all(m, sp, src);
-        std::mem::swap(m, sp);
+        self.cell_offsets.push(pos);
+        let alive = pos as usize;
+        // Each molecule's key becomes its destination (DEAD_KEY stays: not placed).
+        s.counts
+            .par_chunks_mut(nkeys)
+            .zip(s.keys.par_chunks_mut(block_len))
+            .for_each(|(cursor, k)| {
+                for k in k.iter_mut() {
+                    if *k != DEAD_KEY {
+                        let c = &mut cursor[*k as usize];
+                        *k = *c;
+                        *c += 1;
+                    }
+                }
+            });
+        let dest = &s.keys;
+        scatter(&mut m.z, &mut s.f64_column, dest, alive);
+        scatter(&mut m.r, &mut s.f64_column, dest, alive);
+        scatter(&mut m.vz, &mut s.f64_column, dest, alive);
+        scatter(&mut m.vr, &mut s.f64_column, dest, alive);
+        scatter(&mut m.vt, &mut s.f64_column, dest, alive);
+        scatter(&mut m.erot, &mut s.f64_column, dest, alive);
+        scatter(&mut m.species, &mut s.u8_column, dest, alive);
     }
 
     /// Stage: NTC collisions in every cell, in parallel over fixed blocks of cells.
@@ -613,6 +685,26 @@ impl Simulation {
         }
     }
 
+    /// Heap bytes held by the per-molecule buffers: the molecule arrays and the sort's
+    /// scratch, at their allocated capacity (the memory a large run needs per molecule).
+    pub fn molecule_buffer_bytes(&self) -> usize {
+        fn bytes<T>(v: &Vec<T>) -> usize {
+            v.capacity() * std::mem::size_of::<T>()
+        }
+        let m = &self.molecules;
+        let s = &self.sort;
+        bytes(&m.z)
+            + bytes(&m.r)
+            + bytes(&m.vz)
+            + bytes(&m.vr)
+            + bytes(&m.vt)
+            + bytes(&m.erot)
+            + bytes(&m.species)
+            + bytes(&s.keys)
+            + bytes(&s.f64_column)
+            + bytes(&s.u8_column)
+    }
+
     /// Simulated molecules in the domain (clones waiting for release are not counted).
     pub fn population(&self) -> u64 {
         self.molecules.len() as u64
@@ -698,37 +790,51 @@ impl Simulation {
     }
 }
 
-/// dst[k] = src[index[k]] for every molecule array, in one parallel pass.
-fn gather_all(src: &Molecules, dst: &mut Molecules, index: &[u32]) {
-    let n = index.len();
-    dst.z.resize(n, 0.0);
-    dst.r.resize(n, 0.0);
-    dst.vz.resize(n, 0.0);
-    dst.vr.resize(n, 0.0);
-    dst.vt.resize(n, 0.0);
-    dst.erot.resize(n, 0.0);
-    dst.species.resize(n, 0);
-    dst.z
-        .par_chunks_mut(CHUNK)
-        .zip(dst.r.par_chunks_mut(CHUNK))
-        .zip(dst.vz.par_chunks_mut(CHUNK))
-        .zip(dst.vr.par_chunks_mut(CHUNK))
-        .zip(dst.vt.par_chunks_mut(CHUNK))
-        .zip(dst.erot.par_chunks_mut(CHUNK))
-        .zip(dst.species.par_chunks_mut(CHUNK))
-        .zip(index.par_chunks(CHUNK))
-        .for_each(|(((((((z, r), vz), vr), vt), erot), sp), ix)| {
-            for (k, &i) in ix.iter().enumerate() {
-                let i = i as usize;
-                z[k] = src.z[i];
-                r[k] = src.r[i];
-                vz[k] = src.vz[i];
-                vr[k] = src.vr[i];
-                vt[k] = src.vt[i];
-                erot[k] = src.erot[i];
-                sp[k] = src.species[i];
+/// Sort key of a molecule marked dead: it is not placed, so the sort also compacts.
+const DEAD_KEY: u32 = u32::MAX;
+
+/// Reorder one column: molecule i goes to position `dest[i]` (skipped when `DEAD_KEY`); `dest`
+/// maps the live molecules one-to-one onto 0..alive. The result is built in `spare` and the
+/// two vectors are swapped, so the old column becomes the next column's scratch.
+fn scatter<T: Copy + Default + Send + Sync>(
+    column: &mut Vec<T>,
+    spare: &mut Vec<T>,
+    dest: &[u32],
+    alive: usize,
+) {
+    spare.clear();
+    make_room(spare, alive);
+    spare.resize(alive, T::default());
+    let out = Scatter(spare.as_mut_ptr(), alive);
+    column
+        .par_chunks(CHUNK)
+        .zip(dest.par_chunks(CHUNK))
+        .for_each(|(col, d)| {
+            for (&v, &d) in col.iter().zip(d) {
+                if d != DEAD_KEY {
+                    out.write(d as usize, v);
+                }
             }
         });
+    std::mem::swap(column, spare);
+}
+
+/// Write access to one vector shared by the workers of a scatter.
+struct Scatter<T>(*mut T, usize);
+
+// SAFETY: the workers write through the pointer only at the positions of a one-to-one map
+// (`scatter`'s `dest`), so no two of them ever touch the same element, and nothing reads the
+// vector until the parallel loop has joined.
+unsafe impl<T: Send> Send for Scatter<T> {}
+unsafe impl<T: Send> Sync for Scatter<T> {}
+
+impl<T> Scatter<T> {
+    #[inline]
+    fn write(&self, i: usize, v: T) {
+        assert!(i < self.1, "destination out of range");
+        // SAFETY: in bounds (checked above) and written by exactly one worker (see the impls).
+        unsafe { self.0.add(i).write(v) }
+    }
 }
 
 /// How a run ended.
