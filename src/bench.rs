@@ -65,8 +65,16 @@ pub struct WorkloadResult {
     pub stage_times: StageTimes,
     /// Bytes of the molecule arrays per molecule (structure of arrays, one copy).
     pub array_bytes_per_molecule: usize,
-    /// Resident memory of the process divided by the molecule count at the end.
+    /// Heap held by every per-molecule buffer of the simulation (the arrays and the sort's
+    /// reused scratch, at their allocated capacity) over the molecule count at the end.
+    pub buffer_bytes_per_molecule: f64,
+    /// Resident memory of the whole process divided by the molecule count at the end
+    /// (includes the program, its libraries and the per-cell arrays, so it falls as the
+    /// molecule count grows).
     pub resident_bytes_per_molecule: f64,
+    /// Growth of the resident memory from just before the simulation was built to the end of
+    /// the timed steps, over the molecule count at the end: what the run itself costs.
+    pub resident_growth_bytes_per_molecule: f64,
     /// Model of the bytes moved per particle-step (array passes × bytes per molecule).
     pub modelled_bytes_per_particle_step: f64,
     /// Achieved (modelled) bytes per second over the measured copy bandwidth.
@@ -120,6 +128,7 @@ pub fn workload(
     threads: usize,
     bandwidth: f64,
 ) -> WorkloadResult {
+    let rss0 = resident_bytes().unwrap_or(f64::NAN);
     let c = case::parse(text, name, &[]).expect("benchmark case is valid");
     let mut plan = Plan::new(&c).expect("benchmark plan");
     plan.startup_steps = warmup; // collision counters start with the timed steps
@@ -154,6 +163,8 @@ pub fn workload(
     };
     let modelled = passes * array_bytes as f64;
     let rate = ps / wall;
+    let molecules = sim.population().max(1) as f64;
+    let rss = resident_bytes().unwrap_or(f64::NAN);
     WorkloadResult {
         name,
         steps,
@@ -164,31 +175,56 @@ pub fn workload(
         collisions_per_s: sim.collision_stats.collisions as f64 / wall,
         stage_times: st,
         array_bytes_per_molecule: array_bytes,
-        resident_bytes_per_molecule: resident_bytes().unwrap_or(f64::NAN)
-            / sim.population().max(1) as f64,
+        buffer_bytes_per_molecule: sim.molecule_buffer_bytes() as f64 / molecules,
+        resident_bytes_per_molecule: rss / molecules,
+        resident_growth_bytes_per_molecule: (rss - rss0) / molecules,
         modelled_bytes_per_particle_step: modelled,
         fraction_of_copy_bandwidth: rate * modelled / (bandwidth * 1e9),
     }
 }
 
-/// Run the whole benchmark on the current rayon pool.
-pub fn run(threads: usize) -> BenchReport {
+/// Which workloads to run.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Selection {
+    All,
+    /// Workload (a) only.
+    FreeMolecular,
+    /// Workload (b) only.
+    Dsmc,
+}
+
+/// Run the benchmark on the current rayon pool. Workload (b) runs first: its resident-memory
+/// growth is then not hidden by heap that (a), the larger one, has freed.
+pub fn run(threads: usize, selection: Selection) -> BenchReport {
     let single = copy_bandwidth(false);
     let all = copy_bandwidth(true);
-    let a = workload(
-        "free_molecular_moves",
-        FREE_MOLECULAR_CASE,
-        50,
-        300,
-        threads,
-        all,
-    );
-    let b = workload("dsmc_orifice_delta_1", DSMC_CASE, 300, 600, threads, all);
+    let mut workloads = Vec::new();
+    if selection != Selection::FreeMolecular {
+        workloads.push(workload(
+            "dsmc_orifice_delta_1",
+            DSMC_CASE,
+            300,
+            600,
+            threads,
+            all,
+        ));
+    }
+    if selection != Selection::Dsmc {
+        workloads.push(workload(
+            "free_molecular_moves",
+            FREE_MOLECULAR_CASE,
+            50,
+            300,
+            threads,
+            all,
+        ));
+    }
+    workloads.reverse();
     BenchReport {
         kinflux_version: env!("CARGO_PKG_VERSION"),
         threads,
         copy_bandwidth_single_thread_gb_s: single,
         copy_bandwidth_all_threads_gb_s: all,
-        workloads: vec![a, b],
+        workloads,
     }
 }
