@@ -169,20 +169,22 @@ impl Axisymmetric {
         in_partition_z && r > self.radius + eps
     }
 
-    /// A lower bound of the distance from (z, r) to every surface and to the measurement plane
-    /// z = t, m. The distance from a point to a surface of revolution equals the distance in
-    /// the meridian half-plane, so a flight shorter than this cannot meet anything.
+    /// True when a straight flight from axial position `z` to `z_end`, whose largest squared
+    /// radius is `r_far2`, stays strictly inside the open region it starts in (upstream
+    /// z < 0, bore 0 < z < t inside the hole, downstream z > t), so it can meet no surface.
+    /// r² along a straight 3-D flight is convex in time, so its largest value is at one end,
+    /// and z is monotonic: the test is exact, and needs no division or square root.
     #[inline]
-    pub fn clearance(&self, z: f64, r: f64) -> f64 {
-        let mut d = (z - self.z_min).min(self.z_max - z).min(self.r_max - r);
+    pub fn flight_stays_in_region(&self, z: f64, z_end: f64, r_far2: f64) -> bool {
+        let (lo, hi) = if z_end < z { (z_end, z) } else { (z, z_end) };
+        let t = self.thickness;
         if z < 0.0 {
-            d = d.min(-z);
-        } else if z > self.thickness {
-            d = d.min(z - self.thickness);
+            lo > self.z_min && hi < 0.0 && r_far2 < self.r_max * self.r_max
+        } else if z > t {
+            lo > t && hi < self.z_max && r_far2 < self.r_max * self.r_max
         } else {
-            d = d.min(self.radius - r).min(z).min(self.thickness - z);
+            lo > 0.0 && hi < t && r_far2 < self.radius * self.radius
         }
-        d
     }
 
     /// Gas volume of the upstream region (z < 0), m³.
@@ -219,11 +221,22 @@ impl Axisymmetric {
         let r_far2 = (r * r).max(xe * xe + ye * ye);
         let ze = z + vz * t_max;
         let (z_a, z_b) = if ze < z { (ze, z) } else { (z, ze) };
+        // Axial reach of the flight, widened by far more than the rounding of a quotient, so
+        // that the division-free screen of the planes below never drops a plane that the exact
+        // test would accept: the screen only saves divisions, the exact test still decides.
+        let reach = vz.abs() * t_max * (1.0 + 1e-12);
         for (id, s) in self.surfaces.iter().enumerate() {
             let on_it = last == Some(id);
             let hit = match s.shape {
                 SurfaceShape::PlaneZ { z: zp, r_lo, r_hi } => {
-                    if on_it || vz == 0.0 {
+                    let dz = zp - z;
+                    // Behind the flight (t ≤ 0) or out of its reach: no division needed.
+                    if on_it
+                        || vz == 0.0
+                        || dz == 0.0
+                        || (dz > 0.0) != (vz > 0.0)
+                        || dz.abs() > reach
+                    {
                         None
                     } else {
                         let t = (zp - z) / vz;
@@ -318,8 +331,16 @@ fn cylinder_time(
 pub fn fly(z: f64, r: f64, vz: f64, vr: f64, vt: f64, t: f64) -> (f64, f64, f64, f64) {
     let x = r + vr * t;
     let y = vt * t;
-    let rn = (x * x + y * y).sqrt();
     let zn = z + vz * t;
+    rotate(zn, x, y, x * x + y * y, vr, vt)
+}
+
+/// The end of a flight at 3-D position (x, y, zn), x² + y² = `r2`, with transverse velocity
+/// (v_r, v_θ) in the starting frame, rotated into the (z, r) half-plane: (z, r, v_r, v_θ).
+/// One square root and one division per flight, the least the rotation needs.
+#[inline]
+pub fn rotate(zn: f64, x: f64, y: f64, r2: f64, vr: f64, vt: f64) -> (f64, f64, f64, f64) {
+    let rn = r2.sqrt();
     if rn > 0.0 {
         let inv = 1.0 / rn;
         (zn, rn, (x * vr + y * vt) * inv, (x * vt - y * vr) * inv)

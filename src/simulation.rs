@@ -865,7 +865,7 @@ fn fly_one<R: Rng>(
     let band0 = w.band(f.r);
     let weight = w.factor[band0];
     let crossings = &mut rep.crossings;
-    let (mass, inv_a) = (plan.masses[s], 1.0 / plan.geometry.radius);
+    let (mass, a) = (plan.masses[s], plan.geometry.radius);
     let mut diffused = false;
     let fate = advance(
         &plan.geometry,
@@ -875,7 +875,8 @@ fn fly_one<R: Rng>(
         last,
         plan.z_count,
         rng,
-        &mut |sign, r, cos| crossings.add(s, sign, weight, mass, r * inv_a, cos),
+        // The division happens only at a crossing, not once per molecule.
+        &mut |sign, r, cos| crossings.add(s, sign, weight, mass, r / a, cos),
         &mut diffused,
     );
     match fate {
