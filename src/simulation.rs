@@ -796,7 +796,7 @@ const DEAD_KEY: u32 = u32::MAX;
 /// Reorder one column: molecule i goes to position `dest[i]` (skipped when `DEAD_KEY`); `dest`
 /// maps the live molecules one-to-one onto 0..alive. The result is built in `spare` and the
 /// two vectors are swapped, so the old column becomes the next column's scratch.
-fn scatter<T: Copy + Default + Send + Sync>(
+fn scatter<T: Copy + Send + Sync>(
     column: &mut Vec<T>,
     spare: &mut Vec<T>,
     dest: &[u32],
@@ -804,7 +804,6 @@ fn scatter<T: Copy + Default + Send + Sync>(
 ) {
     spare.clear();
     make_room(spare, alive);
-    spare.resize(alive, T::default());
     let out = Scatter(spare.as_mut_ptr(), alive);
     column
         .par_chunks(CHUNK)
@@ -816,10 +815,15 @@ fn scatter<T: Copy + Default + Send + Sync>(
                 }
             }
         });
+    // SAFETY: capacity ≥ alive (make_room), and the loop above wrote every position of
+    // 0..alive exactly once, because `dest` maps the live molecules one-to-one onto it (the
+    // cursors of the counting sort enumerate exactly the positions 0..alive). Skipping the
+    // zero fill saves a pass over every column.
+    unsafe { spare.set_len(alive) };
     std::mem::swap(column, spare);
 }
 
-/// Write access to one vector shared by the workers of a scatter.
+/// Write access to the capacity of one vector, shared by the workers of a scatter.
 struct Scatter<T>(*mut T, usize);
 
 // SAFETY: the workers write through the pointer only at the positions of a one-to-one map
@@ -832,7 +836,8 @@ impl<T> Scatter<T> {
     #[inline]
     fn write(&self, i: usize, v: T) {
         assert!(i < self.1, "destination out of range");
-        // SAFETY: in bounds (checked above) and written by exactly one worker (see the impls).
+        // SAFETY: within the allocated capacity (checked above) and written by exactly one
+        // worker (see the impls).
         unsafe { self.0.add(i).write(v) }
     }
 }
