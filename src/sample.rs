@@ -214,7 +214,7 @@ impl FieldSampler {
 fn add(plan: &Plan, m: &Molecules, i: usize, n: &mut [f64], a: &mut [f64]) {
     let s = m.species[i] as usize;
     let mass = plan.masses[s];
-    let (vz, vr, vt) = (m.vz[i], m.vr[i], m.vt[i]);
+    let (vz, vr, vt) = (f64::from(m.vz[i]), f64::from(m.vr[i]), f64::from(m.vt[i]));
     n[s] += 1.0;
     a[M_MASS] += mass;
     a[M_PZ] += mass * vz;
@@ -223,7 +223,7 @@ fn add(plan: &Plan, m: &Molecules, i: usize, n: &mut [f64], a: &mut [f64]) {
     a[M_EZ] += mass * vz * vz;
     a[M_ER] += mass * vr * vr;
     a[M_ET] += mass * vt * vt;
-    a[M_EROT] += m.erot[i];
+    a[M_EROT] += f64::from(m.erot[i]);
     a[M_ZETA] += plan.rot_dof[s] as f64;
 }
 

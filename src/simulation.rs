@@ -19,7 +19,7 @@ use crate::geometry::SurfaceRole;
 use crate::monitor::{batch_means, BatchEstimate, StopReason};
 use crate::mover::{advance, Fate, Flight};
 use crate::numerics::{Plan, CHUNK};
-use crate::particles::{make_room, Molecules, DEAD};
+use crate::particles::{make_room, Molecules, Stored, DEAD};
 use crate::sample::FieldSampler;
 use crate::streams::{stream, Stage};
 use crate::weights::CLONE_DELAY_MAX;
@@ -100,6 +100,7 @@ struct SortScratch {
     counts: Vec<u32>,
     /// The one spare column per element type that a column is reordered into.
     f64_column: Vec<f64>,
+    stored_column: Vec<Stored>,
     u8_column: Vec<u8>,
 }
 
@@ -357,27 +358,21 @@ impl Simulation {
                         let mut f = Flight {
                             z: z[i],
                             r: r[i],
-                            vz: vz[i],
-                            vr: vr[i],
-                            vt: vt[i],
+                            vz: f64::from(vz[i]),
+                            vr: f64::from(vr[i]),
+                            vt: f64::from(vt[i]),
                         };
+                        let mut e = f64::from(erot[i]);
                         match fly_one(
-                            plan,
-                            step,
-                            &mut f,
-                            &mut erot[i],
-                            s,
-                            plan.dt,
-                            None,
-                            &mut rng,
-                            &mut rep,
+                            plan, step, &mut f, &mut e, s, plan.dt, None, &mut rng, &mut rep,
                         ) {
                             Fate::Stays => {
                                 z[i] = f.z;
                                 r[i] = f.r;
-                                vz[i] = f.vz;
-                                vr[i] = f.vr;
-                                vt[i] = f.vt;
+                                vz[i] = f.vz as Stored;
+                                vr[i] = f.vr as Stored;
+                                vt[i] = f.vt as Stored;
+                                erot[i] = e as Stored;
                             }
                             Fate::Left(_) => sp[i] = DEAD,
                         }
@@ -535,10 +530,10 @@ impl Simulation {
         let dest = &s.keys;
         scatter(&mut m.z, &mut s.f64_column, dest, alive);
         scatter(&mut m.r, &mut s.f64_column, dest, alive);
-        scatter(&mut m.vz, &mut s.f64_column, dest, alive);
-        scatter(&mut m.vr, &mut s.f64_column, dest, alive);
-        scatter(&mut m.vt, &mut s.f64_column, dest, alive);
-        scatter(&mut m.erot, &mut s.f64_column, dest, alive);
+        scatter(&mut m.vz, &mut s.stored_column, dest, alive);
+        scatter(&mut m.vr, &mut s.stored_column, dest, alive);
+        scatter(&mut m.vt, &mut s.stored_column, dest, alive);
+        scatter(&mut m.erot, &mut s.stored_column, dest, alive);
         scatter(&mut m.species, &mut s.u8_column, dest, alive);
     }
 
@@ -561,10 +556,10 @@ impl Simulation {
             first_cell: usize,
             z: &'a [f64],
             r: &'a [f64],
-            vz: &'a mut [f64],
-            vr: &'a mut [f64],
-            vt: &'a mut [f64],
-            erot: &'a mut [f64],
+            vz: &'a mut [Stored],
+            vr: &'a mut [Stored],
+            vt: &'a mut [Stored],
+            erot: &'a mut [Stored],
             species: &'a [u8],
             scm: &'a mut [f64],
         }
@@ -702,6 +697,7 @@ impl Simulation {
             + bytes(&m.species)
             + bytes(&s.keys)
             + bytes(&s.f64_column)
+            + bytes(&s.stored_column)
             + bytes(&s.u8_column)
     }
 
