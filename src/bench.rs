@@ -5,7 +5,9 @@
 //! Workload (b): a collisional orifice at δ ≈ 1 (argon into vacuum, default DSMC numerics) with
 //! moves, sorting and collisions. Each runs a fixed number of warm-up and timed steps from a
 //! fixed seed, so the work is identical every time. Memory bandwidth is measured by copying a
-//! 256 MiB buffer (single thread and all threads). Nothing here asserts on time.
+//! 256 MiB buffer (single thread and all threads). Memory per molecule is measured on case (b)
+//! run with ten times the molecules, where the program and the per-cell arrays no longer
+//! dominate the resident memory. Nothing here asserts on time.
 
 use crate::case;
 use crate::numerics::Plan;
@@ -89,6 +91,45 @@ pub struct BenchReport {
     pub copy_bandwidth_single_thread_gb_s: f64,
     pub copy_bandwidth_all_threads_gb_s: f64,
     pub workloads: Vec<WorkloadResult>,
+    /// Memory of a steady run large enough that per-molecule memory dominates (not measured
+    /// when only one workload runs).
+    pub memory: Option<MemoryResult>,
+}
+
+/// Resident memory of the collisional case run with ten times the molecules.
+#[derive(Debug, Clone, Serialize)]
+pub struct MemoryResult {
+    pub molecules: u64,
+    pub steps: u64,
+    /// Growth of the process's resident memory from before the simulation was built to the
+    /// end of the steps, over the molecule count.
+    pub resident_growth_bytes_per_molecule: f64,
+    /// Heap of the per-molecule buffers at capacity over the molecule count.
+    pub buffer_bytes_per_molecule: f64,
+}
+
+/// Case (b) with 150 instead of 15 molecules per upstream cell (about 350 000 molecules), so
+/// that the per-cell arrays and the program weigh little per molecule; `steps` steps.
+pub fn memory(steps: u64) -> MemoryResult {
+    let rss0 = resident_bytes().unwrap_or(f64::NAN);
+    let c = case::parse(
+        DSMC_CASE,
+        "memory",
+        &["solver.molecules_per_cell=150".to_string()],
+    )
+    .expect("benchmark case is valid");
+    let mut sim = Simulation::new(Plan::new(&c).expect("benchmark plan"));
+    for _ in 0..steps {
+        sim.step();
+    }
+    let n = sim.population().max(1) as f64;
+    let rss = resident_bytes().unwrap_or(f64::NAN);
+    MemoryResult {
+        molecules: sim.population(),
+        steps,
+        resident_growth_bytes_per_molecule: (rss - rss0) / n,
+        buffer_bytes_per_molecule: sim.molecule_buffer_bytes() as f64 / n,
+    }
 }
 
 /// Memory bandwidth of a buffer copy, GB/s (bytes read + bytes written, per second).
@@ -193,11 +234,13 @@ pub enum Selection {
     Dsmc,
 }
 
-/// Run the benchmark on the current rayon pool. Workload (b) runs first: its resident-memory
-/// growth is then not hidden by heap that (a), the larger one, has freed.
+/// Run the benchmark on the current rayon pool. The memory measurement runs first and (b)
+/// before (a): each resident-memory growth is then not hidden by heap that a larger run before
+/// it has freed.
 pub fn run(threads: usize, selection: Selection) -> BenchReport {
     let single = copy_bandwidth(false);
     let all = copy_bandwidth(true);
+    let memory = (selection == Selection::All).then(|| memory(50));
     let mut workloads = Vec::new();
     if selection != Selection::FreeMolecular {
         workloads.push(workload(
@@ -226,5 +269,6 @@ pub fn run(threads: usize, selection: Selection) -> BenchReport {
         copy_bandwidth_single_thread_gb_s: single,
         copy_bandwidth_all_threads_gb_s: all,
         workloads,
+        memory,
     }
 }

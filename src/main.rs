@@ -170,6 +170,12 @@ fn other(command: Command) -> anyhow::Result<()> {
                     report.copy_bandwidth_single_thread_gb_s,
                     report.copy_bandwidth_all_threads_gb_s
                 );
+                if let Some(mem) = &report.memory {
+                    println!(
+                        "memory: case (b) with {} molecules after {} steps: {:.0} B/molecule resident growth, {:.0} B/molecule in the per-molecule buffers",
+                        mem.molecules, mem.steps, mem.resident_growth_bytes_per_molecule, mem.buffer_bytes_per_molecule
+                    );
+                }
                 for w in &report.workloads {
                     println!("{}:", w.name);
                     println!(
@@ -182,8 +188,8 @@ fn other(command: Command) -> anyhow::Result<()> {
                     );
                     let t = &w.stage_times;
                     println!(
-                        "  stages (s): move {:.2}, sort {:.2}, collide {:.2}, inject {:.2}, compact {:.2}, release {:.2}",
-                        t.move_s, t.sort_s, t.collide_s, t.inject_s, t.compact_s, t.release_s
+                        "  stages (s): move {:.2}, sort {:.2}, collide {:.2}, sample {:.2}, inject {:.2}, compact {:.2}, release {:.2}, record {:.3}",
+                        t.move_s, t.sort_s, t.collide_s, t.sample_s, t.inject_s, t.compact_s, t.release_s, t.record_s
                     );
                     println!(
                         "  memory per molecule: {} B in the arrays, {:.0} B in all per-molecule buffers, {:.0} B resident growth during the run, {:.0} B whole process resident",
