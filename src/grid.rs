@@ -46,8 +46,8 @@ struct Lookup {
     inv_width: f64,
     /// Index of the zone's first cell.
     offset: usize,
-    /// Index of the zone's last cell relative to its first.
-    last: usize,
+    /// Index of the zone's last cell relative to its first, as a float (for the clamp).
+    last: f64,
 }
 
 /// Edges and lookup of a coordinate split into consecutive zones.
@@ -80,14 +80,14 @@ impl Axis {
             start: f64::INFINITY,
             inv_width: 0.0,
             offset: 0,
-            last: 0,
+            last: 0.0,
         }; MAX_ZONES];
         for (k, z) in zones.iter().enumerate() {
             lookup[k] = Lookup {
                 start: z.start,
                 inv_width: 1.0 / z.width,
                 offset: offsets[k],
-                last: z.count - 1,
+                last: (z.count - 1) as f64,
             };
         }
         Axis {
@@ -115,7 +115,10 @@ impl Axis {
         let k = usize::from(x >= self.lookup[1].start) + usize::from(x >= self.lookup[2].start);
         let z = &self.lookup[k];
         let u = ((x - z.start) * z.inv_width).max(0.0);
-        let i = (u as usize).min(z.last);
+        // Clamped first, the float is a small non-negative integer part (max maps NaN to 0),
+        // so the conversion to i32 is exact and needs none of the range fix-ups that a
+        // conversion to usize compiles to.
+        let i = u.min(z.last) as i32 as usize;
         (z.offset + i, (u - i as f64).clamp(0.0, 0.999_999_999))
     }
 
@@ -220,6 +223,9 @@ impl Grid {
     pub fn key(&self, z: f64, r: f64) -> usize {
         let (iz, fz) = self.z.locate(z);
         let (ir, fr) = self.r.locate(r);
+        if self.sub == 1 {
+            return iz * self.r.len() + ir;
+        }
         let s = self.sub as f64;
         let sub = (fz * s) as usize * self.sub + (fr * s) as usize;
         (iz * self.r.len() + ir) * self.subcells() + sub

@@ -212,6 +212,7 @@ impl FieldSampler {
 /// Add molecule i to its cell's species counts `n` and moments `a`.
 #[inline]
 fn add(plan: &Plan, m: &Molecules, i: usize, n: &mut [f64], a: &mut [f64]) {
+    let a: &mut [f64; MOMENTS] = a.try_into().expect("one cell's moments");
     let s = m.species[i] as usize;
     let mass = plan.masses[s];
     let (vz, vr, vt) = (f64::from(m.vz[i]), f64::from(m.vr[i]), f64::from(m.vt[i]));

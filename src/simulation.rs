@@ -850,7 +850,7 @@ pub struct RunOutcome {
 /// changed radial row (see `weights`). Returns its fate; a molecule deleted by reweighting is
 /// reported as `Fate::Left(SurfaceRole::Wall)` and counted in `rep.deleted`.
 #[allow(clippy::too_many_arguments)]
-#[inline]
+#[inline(always)] // in the move loop's body: the call itself was a tenth of a move's cost
 fn fly_one<R: Rng>(
     plan: &Plan,
     step: u64,
