@@ -2,9 +2,9 @@
 //!
 //! Each molecule has an axial position z, a radius r ≥ 0, three velocity components in its
 //! local frame (v_z, v_r, v_θ), a rotational energy (J) and a species index. Arrays always have
-//! equal length; a molecule marked [`DEAD`] is removed by [`Molecules::compact`] (or by the
-//! DSMC mode's sort), which keeps the order of the survivors (order matters for
-//! reproducibility). Arrays grow by an eighth, not by doubling ([`make_room`]): they are most
+//! equal length; molecules that leave are removed by the move and [`Molecules::close_gaps`]
+//! (free-molecular mode) or marked [`DEAD`] and dropped by the sort (DSMC mode), both keeping
+//! the order of the survivors (order matters for reproducibility). Arrays grow by an eighth, not by doubling ([`make_room`]): they are most
 //! of a run's memory.
 //!
 //! Precision: positions are f64, because flights are snapped exactly onto walls (z = 0, z = t,
@@ -82,32 +82,28 @@ impl Molecules {
         }
     }
 
-    /// Remove molecules marked [`DEAD`], keeping the order of the rest. Returns how many went.
-    pub fn compact(&mut self) -> usize {
-        let n = self.len();
-        let mut w = 0;
-        for i in 0..n {
-            if self.species[i] != DEAD {
-                if w != i {
-                    self.z[w] = self.z[i];
-                    self.r[w] = self.r[i];
-                    self.vz[w] = self.vz[i];
-                    self.vr[w] = self.vr[i];
-                    self.vt[w] = self.vt[i];
-                    self.erot[w] = self.erot[i];
-                    self.species[w] = self.species[i];
+    /// Close the gaps left by a move that compacted each chunk of `chunk` molecules in place:
+    /// chunk k keeps its first `kept[k]` molecules. Keeps the order of the survivors. One block
+    /// move per chunk and array (a memmove), so this serial stage costs little next to the
+    /// parallel move.
+    pub fn close_gaps(&mut self, chunk: usize, kept: &[usize]) {
+        fn close<T: Copy>(v: &mut Vec<T>, chunk: usize, kept: &[usize]) {
+            let mut w = 0;
+            for (k, &n) in kept.iter().enumerate() {
+                if w != k * chunk {
+                    v.copy_within(k * chunk..k * chunk + n, w);
                 }
-                w += 1;
+                w += n;
             }
+            v.truncate(w);
         }
-        self.z.truncate(w);
-        self.r.truncate(w);
-        self.vz.truncate(w);
-        self.vr.truncate(w);
-        self.vt.truncate(w);
-        self.erot.truncate(w);
-        self.species.truncate(w);
-        n - w
+        close(&mut self.z, chunk, kept);
+        close(&mut self.r, chunk, kept);
+        close(&mut self.vz, chunk, kept);
+        close(&mut self.vr, chunk, kept);
+        close(&mut self.vt, chunk, kept);
+        close(&mut self.erot, chunk, kept);
+        close(&mut self.species, chunk, kept);
     }
 
     /// Bytes held per molecule by the arrays (struct-of-arrays footprint).

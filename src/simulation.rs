@@ -1,7 +1,8 @@
 //! The step loop: one simulation of one case, stage by stage.
 //!
 //! A step is a readable list of stages: move (wall hits, aperture counting, radial
-//! reweighting) → compact (free-molecular mode) → inject from the reservoirs → release delayed
+//! reweighting; in free-molecular mode each chunk's survivors are compacted to its start) →
+//! close the gaps between chunks (free-molecular mode) → inject from the reservoirs → release delayed
 //! clones → sort by cell (DSMC mode; the sort also drops the molecules that left) → collide →
 //! record the flux → sample the fields (after start-up). The move runs in parallel over fixed
 //! chunks of [`CHUNK`] molecules, the collisions and the sampling over fixed blocks of cells,
@@ -73,6 +74,8 @@ struct MoveReport {
     left_down: u64,
     deleted: u64,
     clones: Vec<PendingClone>,
+    /// Molecules of the chunk still in the domain (the move stage).
+    kept: usize,
 }
 
 impl MoveReport {
@@ -83,6 +86,7 @@ impl MoveReport {
             left_down: 0,
             deleted: 0,
             clones: Vec::new(),
+            kept: 0,
         }
     }
 }
@@ -180,6 +184,8 @@ pub struct Simulation {
     sort: SortScratch,
     /// Partial field sums of the unsorted (free-molecular) sampling, reused from step to step.
     sample_partial: Vec<f64>,
+    /// Survivors per move chunk, compacted to the chunk's start (free-molecular mode).
+    kept: Vec<usize>,
 }
 
 impl Simulation {
@@ -221,6 +227,7 @@ impl Simulation {
             checkpoint_hook: None,
             sort: SortScratch::default(),
             sample_partial: Vec::new(),
+            kept: Vec::new(),
         }
     }
 
@@ -266,7 +273,8 @@ impl Simulation {
         let mut crossings = timed(&mut t.move_s, || self.move_molecules());
         // With collisions the sort drops the dead molecules, after the newcomers joined.
         if self.plan.collisions.is_none() {
-            timed(&mut t.compact_s, || self.molecules.compact());
+            let (m, kept) = (&mut self.molecules, &self.kept);
+            timed(&mut t.compact_s, || m.close_gaps(CHUNK, kept));
         }
         timed(&mut t.inject_s, || self.inject(&mut crossings));
         // Clones join at the end of their release step, where the time-shifted copy of the
@@ -339,6 +347,7 @@ impl Simulation {
         let step = self.step;
         let seed = plan.case.solver.seed;
         let nspecies = plan.masses.len();
+        let compacting = plan.collisions.is_none();
         let m = &mut self.molecules;
         self.particle_steps += m.len() as u64;
         let reports: Vec<MoveReport> =
@@ -353,6 +362,10 @@ impl Simulation {
                 .map(|(ci, ((((((z, r), vz), vr), vt), erot), sp))| {
                     let mut rng = stream(seed, step, Stage::Move, ci as u64);
                     let mut rep = MoveReport::new(nspecies);
+                    // Survivors are written to `w` ≤ i: compacted inside the chunk while
+                    // moving (free-molecular mode), or left in place and the dead marked (DSMC
+                    // mode, where the sort drops them).
+                    let mut w = 0;
                     for i in 0..z.len() {
                         let s = sp[i] as usize;
                         let mut f = Flight {
@@ -367,21 +380,31 @@ impl Simulation {
                             plan, step, &mut f, &mut e, s, plan.dt, None, &mut rng, &mut rep,
                         ) {
                             Fate::Stays => {
-                                z[i] = f.z;
-                                r[i] = f.r;
-                                vz[i] = f.vz as Stored;
-                                vr[i] = f.vr as Stored;
-                                vt[i] = f.vt as Stored;
-                                erot[i] = e as Stored;
+                                let j = if compacting { w } else { i };
+                                z[j] = f.z;
+                                r[j] = f.r;
+                                vz[j] = f.vz as Stored;
+                                vr[j] = f.vr as Stored;
+                                vt[j] = f.vt as Stored;
+                                erot[j] = e as Stored;
+                                sp[j] = s as u8;
+                                w += 1;
                             }
-                            Fate::Left(_) => sp[i] = DEAD,
+                            Fate::Left(_) => {
+                                if !compacting {
+                                    sp[i] = DEAD;
+                                }
+                            }
                         }
                     }
+                    rep.kept = w;
                     rep
                 })
                 .collect();
         let mut total = Crossings::new(nspecies);
+        self.kept.clear();
         for rep in reports {
+            self.kept.push(rep.kept);
             total.merge(&rep.crossings);
             self.balance.left_upstream += rep.left_up;
             self.balance.left_downstream += rep.left_down;
