@@ -169,21 +169,23 @@ impl Axisymmetric {
         in_partition_z && r > self.radius + eps
     }
 
-    /// True when a straight flight from axial position `z` to `z_end`, whose largest squared
-    /// radius is `r_far2`, stays strictly inside the open region it starts in (upstream
-    /// z < 0, bore 0 < z < t inside the hole, downstream z > t), so it can meet no surface.
-    /// r² along a straight 3-D flight is convex in time, so its largest value is at one end,
-    /// and z is monotonic: the test is exact, and needs no division or square root.
+    /// True when a straight flight from (z, r² = `r2`) to (`z_end`, `r2_end`) meets no surface
+    /// at any time after its start: it stays inside the region it starts in (upstream z < 0,
+    /// bore 0 < z < t inside the hole, downstream z > t), where it may start on the region's
+    /// boundary (an entering molecule on a reservoir face, a molecule on the bore wall) but
+    /// must end strictly inside. r² along a straight 3-D flight is a convex function of time,
+    /// so r² ≤ R² at the start and r² < R² at the end give r² < R² at every later time; z is
+    /// monotonic. The test is exact and needs no division or square root.
     #[inline]
-    pub fn flight_stays_in_region(&self, z: f64, z_end: f64, r_far2: f64) -> bool {
-        let (lo, hi) = if z_end < z { (z_end, z) } else { (z, z_end) };
+    pub fn flight_stays_in_region(&self, z: f64, r2: f64, z_end: f64, r2_end: f64) -> bool {
         let t = self.thickness;
+        let inside = |rc: f64| r2 <= rc * rc && r2_end < rc * rc;
         if z < 0.0 {
-            lo > self.z_min && hi < 0.0 && r_far2 < self.r_max * self.r_max
+            z >= self.z_min && z_end > self.z_min && z_end < 0.0 && inside(self.r_max)
         } else if z > t {
-            lo > t && hi < self.z_max && r_far2 < self.r_max * self.r_max
+            z <= self.z_max && z_end < self.z_max && z_end > t && inside(self.r_max)
         } else {
-            lo > 0.0 && hi < t && r_far2 < self.radius * self.radius
+            z > 0.0 && z_end > 0.0 && z < t && z_end < t && inside(self.radius)
         }
     }
 

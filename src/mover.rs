@@ -58,14 +58,15 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
     let mut remaining = dt;
     // Fast path: a flight that stays inside its region meets no surface, and one that does not
     // pass the measurement plane crosses nothing. (The same end point as the search below
-    // would give: `fly` computes it by the same expressions.)
-    if last.is_none() {
+    // would give: `fly` computes it by the same expressions.) It holds whatever surface the
+    // molecule starts on, so entering molecules take it too.
+    {
         let x = m.r + m.vr * dt;
         let y = m.vt * dt;
         let zn = m.z + m.vz * dt;
         let r2 = x * x + y * y;
         let crosses = (m.z < z_count && zn > z_count) || (m.z > z_count && zn < z_count);
-        if !crosses && geom.flight_stays_in_region(m.z, zn, r2.max(m.r * m.r)) {
+        if !crosses && geom.flight_stays_in_region(m.z, m.r * m.r, zn, r2) {
             let (zn, rn, vrn, vtn) = rotate(zn, x, y, r2, m.vr, m.vt);
             m.z = zn;
             m.r = rn;
