@@ -43,19 +43,18 @@ pub const MAX_HITS_PER_STEP: usize = 10_000;
 /// when the molecule was re-emitted diffusely by a wall (its internal energy must then be
 /// resampled at the wall temperature by the caller; specular hits keep it).
 #[allow(clippy::too_many_arguments)]
-#[inline]
+#[inline(always)] // the fast path belongs in the caller's loop; the search is a call
 pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
     geom: &Axisymmetric,
     wall: &WallReflection,
     m: &mut Flight,
     dt: f64,
-    mut last: Option<SurfaceId>,
+    last: Option<SurfaceId>,
     z_count: f64,
     rng: &mut R,
     on_cross: &mut F,
     diffused: &mut bool,
 ) -> Fate {
-    let mut remaining = dt;
     // Fast path: a flight that stays inside its region meets no surface, and one that does not
     // pass the measurement plane crosses nothing. (The same end point as the search below
     // would give: `fly` computes it by the same expressions.) It holds whatever surface the
@@ -75,6 +74,24 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
             return Fate::Stays;
         }
     }
+    search(geom, wall, m, dt, last, z_count, rng, on_cross, diffused)
+}
+
+/// The general case of [`advance`]: surface search, hits and crossings, hit after hit.
+#[allow(clippy::too_many_arguments)]
+#[inline(never)]
+fn search<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
+    geom: &Axisymmetric,
+    wall: &WallReflection,
+    m: &mut Flight,
+    dt: f64,
+    mut last: Option<SurfaceId>,
+    z_count: f64,
+    rng: &mut R,
+    on_cross: &mut F,
+    diffused: &mut bool,
+) -> Fate {
+    let mut remaining = dt;
     for _ in 0..MAX_HITS_PER_STEP {
         let hit = geom.first_hit(m, remaining, last);
         let t = hit.map_or(remaining, |(t, _)| t);
