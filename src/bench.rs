@@ -195,14 +195,18 @@ pub fn workload(
     st.record_s -= times0.record_s;
     st.sample_s -= times0.sample_s;
     let array_bytes = Molecules::BYTES_PER_MOLECULE;
-    // Passes over the arrays per step: move reads and writes them; with collisions the sort
-    // reads and writes them again and the collision stage reads them.
-    let passes = if sim.plan.collisions.is_some() {
-        5.0
+    // Bytes moved per particle-step, modelled from the passes over the arrays (b bytes per
+    // molecule): the move reads and writes them (2b); with collisions the sort reads z, r and
+    // species for the keys and writes them (21 + 4), counts them (4), turns them into
+    // destinations (8) and scatters every column with its destination (2b + 7 × 4), then the
+    // collision stage and the sampling read the arrays once each (2b); without collisions the
+    // gaps are closed (2b) and the sampling reads them (b).
+    let b = array_bytes as f64;
+    let modelled = if sim.plan.collisions.is_some() {
+        2.0 * b + (25.0 + 4.0 + 8.0 + 2.0 * b + 28.0) + 2.0 * b
     } else {
-        2.0
+        2.0 * b + 2.0 * b + b
     };
-    let modelled = passes * array_bytes as f64;
     let rate = ps / wall;
     let molecules = sim.population().max(1) as f64;
     let rss = resident_bytes().unwrap_or(f64::NAN);
