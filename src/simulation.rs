@@ -186,6 +186,8 @@ pub struct Simulation {
     sample_partial: Vec<f64>,
     /// Survivors per move chunk, compacted to the chunk's start (free-molecular mode).
     kept: Vec<usize>,
+    /// Leading molecules whose sort keys the move has written (DSMC mode).
+    keyed: usize,
 }
 
 impl Simulation {
@@ -228,6 +230,7 @@ impl Simulation {
             sort: SortScratch::default(),
             sample_partial: Vec::new(),
             kept: Vec::new(),
+            keyed: 0,
         }
     }
 
@@ -348,59 +351,81 @@ impl Simulation {
         let seed = plan.case.solver.seed;
         let nspecies = plan.masses.len();
         let compacting = plan.collisions.is_none();
+        let grid = &plan.grid;
+        let (rows, one_subcell) = (grid.r.len(), grid.sub == 1);
         let m = &mut self.molecules;
         self.particle_steps += m.len() as u64;
-        let reports: Vec<MoveReport> =
-            m.z.par_chunks_mut(CHUNK)
-                .zip(m.r.par_chunks_mut(CHUNK))
-                .zip(m.vz.par_chunks_mut(CHUNK))
-                .zip(m.vr.par_chunks_mut(CHUNK))
-                .zip(m.vt.par_chunks_mut(CHUNK))
-                .zip(m.erot.par_chunks_mut(CHUNK))
-                .zip(m.species.par_chunks_mut(CHUNK))
-                .enumerate()
-                .map(|(ci, ((((((z, r), vz), vr), vt), erot), sp))| {
-                    let mut rng = stream(seed, step, Stage::Move, ci as u64);
-                    let mut rep = MoveReport::new(nspecies);
-                    // Survivors are written to `w` ≤ i: compacted inside the chunk while
-                    // moving (free-molecular mode), or left in place and the dead marked (DSMC
-                    // mode, where the sort drops them).
-                    let mut w = 0;
-                    for i in 0..z.len() {
-                        let s = sp[i] as usize;
-                        let mut f = Flight {
-                            z: z[i],
-                            r: r[i],
-                            vz: f64::from(vz[i]),
-                            vr: f64::from(vr[i]),
-                            vt: f64::from(vt[i]),
-                        };
-                        let mut e = f64::from(erot[i]);
-                        match fly_one(
-                            plan, step, &mut f, &mut e, s, plan.dt, None, &mut rng, &mut rep,
-                        ) {
-                            Fate::Stays => {
-                                let j = if compacting { w } else { i };
-                                z[j] = f.z;
-                                r[j] = f.r;
-                                vz[j] = f.vz as Stored;
-                                vr[j] = f.vr as Stored;
-                                vt[j] = f.vt as Stored;
-                                erot[j] = e as Stored;
-                                sp[j] = s as u8;
-                                w += 1;
+        // With collisions the move also writes each molecule's sort key: it knows the new
+        // radial row already (the weight row is the grid row), which saves the sort a pass and
+        // a lookup. The keys array has the molecules' length in both modes (zip stops at the
+        // shortest), but only the DSMC mode writes it.
+        let keys = &mut self.sort.keys;
+        let grow = m.len().saturating_sub(keys.len());
+        make_room(keys, grow);
+        keys.resize(m.len(), 0);
+        self.keyed = m.len();
+        let reports: Vec<MoveReport> = m
+            .z
+            .par_chunks_mut(CHUNK)
+            .zip(m.r.par_chunks_mut(CHUNK))
+            .zip(m.vz.par_chunks_mut(CHUNK))
+            .zip(m.vr.par_chunks_mut(CHUNK))
+            .zip(m.vt.par_chunks_mut(CHUNK))
+            .zip(m.erot.par_chunks_mut(CHUNK))
+            .zip(m.species.par_chunks_mut(CHUNK))
+            .zip(keys.par_chunks_mut(CHUNK))
+            .enumerate()
+            .map(|(ci, (((((((z, r), vz), vr), vt), erot), sp), key))| {
+                let mut rng = stream(seed, step, Stage::Move, ci as u64);
+                let mut rep = MoveReport::new(nspecies);
+                // Survivors are written to `w` ≤ i: compacted inside the chunk while
+                // moving (free-molecular mode), or left in place and the dead marked (DSMC
+                // mode, where the sort drops them).
+                let mut w = 0;
+                for i in 0..z.len() {
+                    let s = sp[i] as usize;
+                    let mut f = Flight {
+                        z: z[i],
+                        r: r[i],
+                        vz: f64::from(vz[i]),
+                        vr: f64::from(vr[i]),
+                        vt: f64::from(vt[i]),
+                    };
+                    let mut e = f64::from(erot[i]);
+                    let mut row = 0;
+                    match fly_one(
+                        plan, step, &mut f, &mut e, s, plan.dt, None, &mut rng, &mut rep, &mut row,
+                    ) {
+                        Fate::Stays => {
+                            if !compacting {
+                                key[i] = if one_subcell {
+                                    (grid.z.locate(f.z).0 * rows + row) as u32
+                                } else {
+                                    grid.key(f.z, f.r) as u32
+                                };
                             }
-                            Fate::Left(_) => {
-                                if !compacting {
-                                    sp[i] = DEAD;
-                                }
+                            let j = if compacting { w } else { i };
+                            z[j] = f.z;
+                            r[j] = f.r;
+                            vz[j] = f.vz as Stored;
+                            vr[j] = f.vr as Stored;
+                            vt[j] = f.vt as Stored;
+                            erot[j] = e as Stored;
+                            sp[j] = s as u8;
+                            w += 1;
+                        }
+                        Fate::Left(_) => {
+                            if !compacting {
+                                sp[i] = DEAD;
+                                key[i] = DEAD_KEY;
                             }
                         }
                     }
-                    rep.kept = w;
-                    rep
-                })
-                .collect();
+                }
+                rep.kept = w;
+                rep
+            })
+            .collect();
         let mut total = Crossings::new(nspecies);
         self.kept.clear();
         for rep in reports {
@@ -454,6 +479,7 @@ impl Simulation {
                         Some(el.surface),
                         &mut rng,
                         &mut rep,
+                        &mut 0,
                     );
                     if fate == Fate::Stays {
                         born.push((f, erot, el.species));
@@ -494,11 +520,13 @@ impl Simulation {
         let grow = n.saturating_sub(s.keys.len());
         make_room(&mut s.keys, grow);
         s.keys.resize(n, 0);
-        s.keys
+        // The move keyed the molecules it moved; the ones that joined since need keys.
+        let keyed = self.keyed.min(n);
+        s.keys[keyed..]
             .par_chunks_mut(CHUNK)
-            .zip(m.z.par_chunks(CHUNK))
-            .zip(m.r.par_chunks(CHUNK))
-            .zip(m.species.par_chunks(CHUNK))
+            .zip(m.z[keyed..].par_chunks(CHUNK))
+            .zip(m.r[keyed..].par_chunks(CHUNK))
+            .zip(m.species[keyed..].par_chunks(CHUNK))
             .for_each(|(((k, z), r), sp)| {
                 for i in 0..k.len() {
                     k[i] = if sp[i] == DEAD {
@@ -884,6 +912,7 @@ fn fly_one<R: Rng>(
     last: Option<usize>,
     rng: &mut R,
     rep: &mut MoveReport,
+    row: &mut usize,
 ) -> Fate {
     let w = &plan.weights;
     let band0 = w.band(f.r);
@@ -919,6 +948,7 @@ fn fly_one<R: Rng>(
             crate::maxwell::rotational_energy(plan.rot_dof[s], plan.case.walls.temperature, rng);
     }
     let band1 = w.band(f.r);
+    *row = band1;
     if band1 != band0 {
         let ratio = weight / w.factor[band1];
         if ratio < 1.0 {
