@@ -5,7 +5,9 @@
 //! Workload (b): a collisional orifice at δ ≈ 1 (argon into vacuum, default DSMC numerics) with
 //! moves, sorting and collisions. Each runs a fixed number of warm-up and timed steps from a
 //! fixed seed, so the work is identical every time. Memory bandwidth is measured by copying a
-//! 256 MiB buffer (single thread and all threads). Nothing here asserts on time.
+//! 256 MiB buffer (single thread and all threads). Memory per molecule is measured on case (b)
+//! run with ten times the molecules, where the program and the per-cell arrays no longer
+//! dominate the resident memory. Nothing here asserts on time.
 
 use crate::case;
 use crate::numerics::Plan;
@@ -65,8 +67,16 @@ pub struct WorkloadResult {
     pub stage_times: StageTimes,
     /// Bytes of the molecule arrays per molecule (structure of arrays, one copy).
     pub array_bytes_per_molecule: usize,
-    /// Resident memory of the process divided by the molecule count at the end.
+    /// Heap held by every per-molecule buffer of the simulation (the arrays and the sort's
+    /// reused scratch, at their allocated capacity) over the molecule count at the end.
+    pub buffer_bytes_per_molecule: f64,
+    /// Resident memory of the whole process divided by the molecule count at the end
+    /// (includes the program, its libraries and the per-cell arrays, so it falls as the
+    /// molecule count grows).
     pub resident_bytes_per_molecule: f64,
+    /// Growth of the resident memory from just before the simulation was built to the end of
+    /// the timed steps, over the molecule count at the end: what the run itself costs.
+    pub resident_growth_bytes_per_molecule: f64,
     /// Model of the bytes moved per particle-step (array passes × bytes per molecule).
     pub modelled_bytes_per_particle_step: f64,
     /// Achieved (modelled) bytes per second over the measured copy bandwidth.
@@ -81,6 +91,45 @@ pub struct BenchReport {
     pub copy_bandwidth_single_thread_gb_s: f64,
     pub copy_bandwidth_all_threads_gb_s: f64,
     pub workloads: Vec<WorkloadResult>,
+    /// Memory of a steady run large enough that per-molecule memory dominates (not measured
+    /// when only one workload runs).
+    pub memory: Option<MemoryResult>,
+}
+
+/// Resident memory of the collisional case run with ten times the molecules.
+#[derive(Debug, Clone, Serialize)]
+pub struct MemoryResult {
+    pub molecules: u64,
+    pub steps: u64,
+    /// Growth of the process's resident memory from before the simulation was built to the
+    /// end of the steps, over the molecule count.
+    pub resident_growth_bytes_per_molecule: f64,
+    /// Heap of the per-molecule buffers at capacity over the molecule count.
+    pub buffer_bytes_per_molecule: f64,
+}
+
+/// Case (b) with 150 instead of 15 molecules per upstream cell (about 350 000 molecules), so
+/// that the per-cell arrays and the program weigh little per molecule; `steps` steps.
+pub fn memory(steps: u64) -> MemoryResult {
+    let rss0 = resident_bytes().unwrap_or(f64::NAN);
+    let c = case::parse(
+        DSMC_CASE,
+        "memory",
+        &["solver.molecules_per_cell=150".to_string()],
+    )
+    .expect("benchmark case is valid");
+    let mut sim = Simulation::new(Plan::new(&c).expect("benchmark plan"));
+    for _ in 0..steps {
+        sim.step();
+    }
+    let n = sim.population().max(1) as f64;
+    let rss = resident_bytes().unwrap_or(f64::NAN);
+    MemoryResult {
+        molecules: sim.population(),
+        steps,
+        resident_growth_bytes_per_molecule: (rss - rss0) / n,
+        buffer_bytes_per_molecule: sim.molecule_buffer_bytes() as f64 / n,
+    }
 }
 
 /// Memory bandwidth of a buffer copy, GB/s (bytes read + bytes written, per second).
@@ -120,6 +169,7 @@ pub fn workload(
     threads: usize,
     bandwidth: f64,
 ) -> WorkloadResult {
+    let rss0 = resident_bytes().unwrap_or(f64::NAN);
     let c = case::parse(text, name, &[]).expect("benchmark case is valid");
     let mut plan = Plan::new(&c).expect("benchmark plan");
     plan.startup_steps = warmup; // collision counters start with the timed steps
@@ -145,15 +195,21 @@ pub fn workload(
     st.record_s -= times0.record_s;
     st.sample_s -= times0.sample_s;
     let array_bytes = Molecules::BYTES_PER_MOLECULE;
-    // Passes over the arrays per step: move reads and writes them; with collisions the sort
-    // reads and writes them again and the collision stage reads them.
-    let passes = if sim.plan.collisions.is_some() {
-        5.0
+    // Bytes moved per particle-step, modelled from the passes over the arrays (b bytes per
+    // molecule): the move reads and writes them (2b); with collisions the sort reads z, r and
+    // species for the keys and writes them (21 + 4), counts them (4), turns them into
+    // destinations (8) and scatters every column with its destination (2b + 7 × 4), then the
+    // collision stage and the sampling read the arrays once each (2b); without collisions the
+    // gaps are closed (2b) and the sampling reads them (b).
+    let b = array_bytes as f64;
+    let modelled = if sim.plan.collisions.is_some() {
+        2.0 * b + (25.0 + 4.0 + 8.0 + 2.0 * b + 28.0) + 2.0 * b
     } else {
-        2.0
+        2.0 * b + 2.0 * b + b
     };
-    let modelled = passes * array_bytes as f64;
     let rate = ps / wall;
+    let molecules = sim.population().max(1) as f64;
+    let rss = resident_bytes().unwrap_or(f64::NAN);
     WorkloadResult {
         name,
         steps,
@@ -164,31 +220,59 @@ pub fn workload(
         collisions_per_s: sim.collision_stats.collisions as f64 / wall,
         stage_times: st,
         array_bytes_per_molecule: array_bytes,
-        resident_bytes_per_molecule: resident_bytes().unwrap_or(f64::NAN)
-            / sim.population().max(1) as f64,
+        buffer_bytes_per_molecule: sim.molecule_buffer_bytes() as f64 / molecules,
+        resident_bytes_per_molecule: rss / molecules,
+        resident_growth_bytes_per_molecule: (rss - rss0) / molecules,
         modelled_bytes_per_particle_step: modelled,
         fraction_of_copy_bandwidth: rate * modelled / (bandwidth * 1e9),
     }
 }
 
-/// Run the whole benchmark on the current rayon pool.
-pub fn run(threads: usize) -> BenchReport {
+/// Which workloads to run.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Selection {
+    All,
+    /// Workload (a) only.
+    FreeMolecular,
+    /// Workload (b) only.
+    Dsmc,
+}
+
+/// Run the benchmark on the current rayon pool. The memory measurement runs first and (b)
+/// before (a): each resident-memory growth is then not hidden by heap that a larger run before
+/// it has freed.
+pub fn run(threads: usize, selection: Selection) -> BenchReport {
     let single = copy_bandwidth(false);
     let all = copy_bandwidth(true);
-    let a = workload(
-        "free_molecular_moves",
-        FREE_MOLECULAR_CASE,
-        50,
-        300,
-        threads,
-        all,
-    );
-    let b = workload("dsmc_orifice_delta_1", DSMC_CASE, 300, 600, threads, all);
+    let memory = (selection == Selection::All).then(|| memory(50));
+    let mut workloads = Vec::new();
+    if selection != Selection::FreeMolecular {
+        workloads.push(workload(
+            "dsmc_orifice_delta_1",
+            DSMC_CASE,
+            300,
+            600,
+            threads,
+            all,
+        ));
+    }
+    if selection != Selection::Dsmc {
+        workloads.push(workload(
+            "free_molecular_moves",
+            FREE_MOLECULAR_CASE,
+            50,
+            300,
+            threads,
+            all,
+        ));
+    }
+    workloads.reverse();
     BenchReport {
         kinflux_version: env!("CARGO_PKG_VERSION"),
         threads,
         copy_bandwidth_single_thread_gb_s: single,
         copy_bandwidth_all_threads_gb_s: all,
-        workloads: vec![a, b],
+        workloads,
+        memory,
     }
 }

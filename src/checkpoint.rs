@@ -4,7 +4,8 @@
 //! File layout (`checkpoint.bin` in the run directory): the magic line `KINFLUX-CHECKPOINT-1\n`,
 //! a little-endian u64 byte count, a JSON header (case text, overrides, step, counters, flux
 //! history, pending clones, array lengths), then raw little-endian arrays: the molecule arrays
-//! (z, r, v_z, v_r, v_θ, E_rot as f64; species as u8), (σ c_r)_max, and the field sampler's
+//! (z, r as f64; v_z, v_r, v_θ, E_rot as f32, as they are stored; species as u8), (σ c_r)_max,
+//! and the field sampler's
 //! counts and moments. Random streams are keyed by the step number, so no generator state is
 //! needed and a resumed run is bit-identical to an uninterrupted one. Invariant: the file is
 //! written to a temporary name and renamed, so a checkpoint on disk is always complete.
@@ -18,7 +19,9 @@ use std::path::Path;
 
 /// File name inside a run directory.
 pub const FILE: &str = "checkpoint.bin";
-const MAGIC: &[u8] = b"KINFLUX-CHECKPOINT-1\n";
+const MAGIC: &[u8] = b"KINFLUX-CHECKPOINT-2\n";
+/// Format 1 stored velocities and rotational energies as f64.
+const MAGIC_1: &[u8] = b"KINFLUX-CHECKPOINT-1\n";
 
 /// What a checkpoint stores besides the arrays.
 #[derive(Debug, Serialize, Deserialize)]
@@ -51,6 +54,13 @@ fn put_f64(out: &mut Vec<u8>, v: &[f64]) {
     }
 }
 
+fn put_f32(out: &mut Vec<u8>, v: &[f32]) {
+    out.reserve(v.len() * 4);
+    for x in v {
+        out.extend_from_slice(&x.to_le_bytes());
+    }
+}
+
 /// Save `sim` to `dir/checkpoint.bin`.
 pub fn save(
     dir: &Path,
@@ -76,12 +86,15 @@ pub fn save(
     let json =
         serde_json::to_vec(&header).map_err(|e| Error::io(&path, std::io::Error::other(e)))?;
     let m = &header.state.molecules;
-    let mut out = Vec::with_capacity(json.len() + m.len() * 49 + 64);
+    let mut out = Vec::with_capacity(json.len() + m.len() * Molecules::BYTES_PER_MOLECULE + 64);
     out.extend_from_slice(MAGIC);
     out.extend_from_slice(&(json.len() as u64).to_le_bytes());
     out.extend_from_slice(&json);
-    for a in [&m.z, &m.r, &m.vz, &m.vr, &m.vt, &m.erot] {
+    for a in [&m.z, &m.r] {
         put_f64(&mut out, a);
+    }
+    for a in [&m.vz, &m.vr, &m.vt, &m.erot] {
+        put_f32(&mut out, a);
     }
     out.extend_from_slice(&m.species);
     put_f64(&mut out, &header.state.sigma_cr_max);
@@ -101,6 +114,17 @@ fn f64s(bytes: &[u8], at: &mut usize, n: usize) -> Option<Vec<f64>> {
     )
 }
 
+/// `n` little-endian f32 values from `bytes` at `*at`, advancing it.
+fn f32s(bytes: &[u8], at: &mut usize, n: usize) -> Option<Vec<f32>> {
+    let raw = bytes.get(*at..*at + 4 * n)?;
+    *at += 4 * n;
+    Some(
+        raw.chunks_exact(4)
+            .map(|c| f32::from_le_bytes(c.try_into().expect("4 bytes")))
+            .collect(),
+    )
+}
+
 /// Read `dir/checkpoint.bin`.
 pub fn load(dir: &Path) -> Result<Loaded> {
     let path = dir.join(FILE);
@@ -112,6 +136,11 @@ pub fn load(dir: &Path) -> Result<Loaded> {
         ))
     };
     let bytes = std::fs::read(&path).map_err(|e| bad(&format!("cannot be read ({e})")))?;
+    if bytes.starts_with(MAGIC_1) {
+        return Err(bad(
+            "was written by an older kinflux (format 1), which this one cannot resume",
+        ));
+    }
     if !bytes.starts_with(MAGIC) || bytes.len() < MAGIC.len() + 8 {
         return Err(bad("is not a kinflux checkpoint"));
     }
@@ -123,9 +152,11 @@ pub fn load(dir: &Path) -> Result<Loaded> {
         .and_then(|h| serde_json::from_slice(h).ok())
         .ok_or_else(|| bad("has a damaged header"))?;
     at += hl;
-    let mut take = |n: usize| f64s(&bytes, &mut at, n).ok_or_else(|| bad("is truncated"));
     let n = header.molecules;
-    let (z, r, vz, vr, vt, erot) = (take(n)?, take(n)?, take(n)?, take(n)?, take(n)?, take(n)?);
+    let mut take = |n: usize| f64s(&bytes, &mut at, n).ok_or_else(|| bad("is truncated"));
+    let (z, r) = (take(n)?, take(n)?);
+    let mut take = |n: usize| f32s(&bytes, &mut at, n).ok_or_else(|| bad("is truncated"));
+    let (vz, vr, vt, erot) = (take(n)?, take(n)?, take(n)?, take(n)?);
     let species = bytes
         .get(at..at + n)
         .ok_or_else(|| bad("is truncated"))?

@@ -24,6 +24,7 @@
 
 use crate::constants::BOLTZMANN;
 use crate::gas::Mixture;
+use crate::particles::{Store, Stored};
 use rand::Rng;
 use rand_distr::{Beta, Distribution};
 use serde::Serialize;
@@ -182,14 +183,15 @@ impl CollisionStats {
     }
 }
 
-/// The molecules of one cell, ordered by subcell.
-pub struct CellMolecules<'a> {
+/// The molecules of one cell, ordered by subcell. Velocities and rotational energies are
+/// stored as `V` (the engine's [`Stored`]) and computed with in f64.
+pub struct CellMolecules<'a, V: Store = Stored> {
     pub z: &'a [f64],
     pub r: &'a [f64],
-    pub vz: &'a mut [f64],
-    pub vr: &'a mut [f64],
-    pub vt: &'a mut [f64],
-    pub erot: &'a mut [f64],
+    pub vz: &'a mut [V],
+    pub vr: &'a mut [V],
+    pub vt: &'a mut [V],
+    pub erot: &'a mut [V],
     pub species: &'a [u8],
     /// Subcell boundaries within the cell (length subcells + 1, from 0 to N).
     pub sub_offsets: &'a [u32],
@@ -211,9 +213,9 @@ pub struct Scratch {
 /// `fnum` is the number of real molecules per simulated molecule of this cell, `volume` the
 /// cell's gas volume (m³), `sigma_cr_max` the cell's per-pair maxima (species² entries, p·S+q).
 #[allow(clippy::too_many_arguments)]
-pub fn collide_cell<R: Rng + ?Sized>(
+pub fn collide_cell<R: Rng + ?Sized, V: Store>(
     model: &CollisionModel,
-    cell: &mut CellMolecules,
+    cell: &mut CellMolecules<V>,
     fnum: f64,
     volume: f64,
     dt: f64,
@@ -295,8 +297,8 @@ pub fn collide_cell<R: Rng + ?Sized>(
                     None => continue,
                 };
                 let (vi, vj) = (
-                    [cell.vz[i], cell.vr[i], cell.vt[i]],
-                    [cell.vz[j], cell.vr[j], cell.vt[j]],
+                    [cell.vz[i].get(), cell.vr[i].get(), cell.vt[i].get()],
+                    [cell.vz[j].get(), cell.vr[j].get(), cell.vt[j].get()],
                 );
                 let g = [vi[0] - vj[0], vi[1] - vj[1], vi[2] - vj[2]];
                 let cr2 = g[0] * g[0] + g[1] * g[1] + g[2] * g[2];
@@ -312,17 +314,17 @@ pub fn collide_cell<R: Rng + ?Sized>(
                 stats.separation_sum +=
                     ((cell.z[i] - cell.z[j]).powi(2) + (cell.r[i] - cell.r[j]).powi(2)).sqrt();
                 let (si, sj) = (cell.species[i] as usize, cell.species[j] as usize);
-                let (mut ei, mut ej) = (cell.erot[i], cell.erot[j]);
+                let (mut ei, mut ej) = (cell.erot[i].get(), cell.erot[j].get());
                 let (vi2, vj2) =
                     binary_collision(model, si, sj, vi, vj, &mut ei, &mut ej, rng, stats);
-                cell.vz[i] = vi2[0];
-                cell.vr[i] = vi2[1];
-                cell.vt[i] = vi2[2];
-                cell.vz[j] = vj2[0];
-                cell.vr[j] = vj2[1];
-                cell.vt[j] = vj2[2];
-                cell.erot[i] = ei;
-                cell.erot[j] = ej;
+                cell.vz[i] = V::put(vi2[0]);
+                cell.vr[i] = V::put(vi2[1]);
+                cell.vt[i] = V::put(vi2[2]);
+                cell.vz[j] = V::put(vj2[0]);
+                cell.vr[j] = V::put(vj2[1]);
+                cell.vt[j] = V::put(vj2[2]);
+                cell.erot[i] = V::put(ei);
+                cell.erot[j] = V::put(ej);
             }
         }
     }

@@ -242,20 +242,24 @@ impl Domain {
         in_partition_z && r > self.radius + eps
     }
 
-    /// A lower bound of the distance from (z, r) to every surface and to the measurement plane
-    /// z = t, m. The distance from a point to a surface of revolution equals the distance in
-    /// the meridian half-plane, so a flight shorter than this cannot meet anything.
+    /// True when a straight flight from (z, r² = `r2`) to (`z_end`, `r2_end`) meets no surface
+    /// at any time after its start: it stays inside the region it starts in (upstream z < 0,
+    /// bore 0 < z < t inside the hole, downstream z > t), where it may start on the region's
+    /// boundary (an entering molecule on a reservoir face, a molecule on the bore wall) but
+    /// must end strictly inside. r² along a straight 3-D flight is a convex function of time,
+    /// so r² ≤ R² at the start and r² < R² at the end give r² < R² at every later time; z is
+    /// monotonic. The test is exact and needs no division or square root.
     #[inline]
-    pub fn clearance(&self, z: f64, r: f64) -> f64 {
-        let mut d = (z - self.z_min).min(self.z_max - z).min(self.r_max - r);
+    pub fn flight_stays_in_region(&self, z: f64, r2: f64, z_end: f64, r2_end: f64) -> bool {
+        let t = self.thickness;
+        let inside = |rc: f64| r2 <= rc * rc && r2_end < rc * rc;
         if z < 0.0 {
-            d = d.min(-z);
-        } else if z > self.thickness {
-            d = d.min(z - self.thickness);
+            z >= self.z_min && z_end > self.z_min && z_end < 0.0 && inside(self.r_max)
+        } else if z > t {
+            z <= self.z_max && z_end < self.z_max && z_end > t && inside(self.r_max)
         } else {
-            d = d.min(self.radius - r).min(z).min(self.thickness - z);
+            z > 0.0 && z_end > 0.0 && z < t && z_end < t && inside(self.radius)
         }
-        d
     }
 
     /// Gas volume of the upstream region (z < 0), m³ (planar: m² per metre).
@@ -293,11 +297,22 @@ impl Domain {
         let r_far2 = (r * r).max(xe * xe + ye * ye);
         let ze = z + vz * t_max;
         let (z_a, z_b) = if ze < z { (ze, z) } else { (z, ze) };
+        // Axial reach of the flight, widened by far more than the rounding of a quotient, so
+        // that the division-free screen of the planes below never drops a plane that the exact
+        // test would accept: the screen only saves divisions, the exact test still decides.
+        let reach = vz.abs() * t_max * (1.0 + 1e-12);
         for (id, s) in self.surfaces.iter().enumerate() {
             let on_it = last == Some(id);
             let hit = match s.shape {
                 SurfaceShape::PlaneZ { z: zp, r_lo, r_hi } => {
-                    if on_it || vz == 0.0 {
+                    let dz = zp - z;
+                    // Behind the flight (t ≤ 0) or out of its reach: no division needed.
+                    if on_it
+                        || vz == 0.0
+                        || dz == 0.0
+                        || (dz > 0.0) != (vz > 0.0)
+                        || dz.abs() > reach
+                    {
                         None
                     } else {
                         let t = (zp - z) / vz;
@@ -399,19 +414,37 @@ pub fn fly(
     vt: f64,
     t: f64,
 ) -> (f64, f64, f64, f64) {
-    if symmetry == Symmetry::Planar {
-        let y = r + vr * t;
-        let zn = z + vz * t;
-        return if y >= 0.0 {
-            (zn, y, vr, vt)
-        } else {
-            (zn, -y, -vr, vt)
-        };
-    }
     let x = r + vr * t;
-    let y = vt * t;
-    let rn = (x * x + y * y).sqrt();
-    let zn = z + vz * t;
+    let y = symmetry.in_plane(vt) * t;
+    land(symmetry, z + vz * t, x, y, x * x + y * y, vr, vt)
+}
+
+/// The end (x, y, zn) of a straight flight in its starting frame, x² + y² = `r2`, brought back
+/// into the (z, r) half-plane: rotated about the axis ([`rotate`]), or, planar (y = 0, x the
+/// signed distance from the mid-plane), mirrored across y = 0 when it lies beyond.
+#[inline]
+pub fn land(
+    symmetry: Symmetry,
+    zn: f64,
+    x: f64,
+    y: f64,
+    r2: f64,
+    vr: f64,
+    vt: f64,
+) -> (f64, f64, f64, f64) {
+    match symmetry {
+        Symmetry::Axisymmetric => rotate(zn, x, y, r2, vr, vt),
+        Symmetry::Planar if x >= 0.0 => (zn, x, vr, vt),
+        Symmetry::Planar => (zn, -x, -vr, vt),
+    }
+}
+
+/// The end of a flight at 3-D position (x, y, zn), x² + y² = `r2`, with transverse velocity
+/// (v_r, v_θ) in the starting frame, rotated into the (z, r) half-plane: (z, r, v_r, v_θ).
+/// One square root and one division per flight, the least the rotation needs.
+#[inline]
+pub fn rotate(zn: f64, x: f64, y: f64, r2: f64, vr: f64, vt: f64) -> (f64, f64, f64, f64) {
+    let rn = r2.sqrt();
     if rn > 0.0 {
         let inv = 1.0 / rn;
         (zn, rn, (x * vr + y * vt) * inv, (x * vt - y * vr) * inv)

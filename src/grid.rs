@@ -34,6 +34,22 @@ impl Zone {
     }
 }
 
+/// Most zones an axis has (upstream, bore, downstream).
+const MAX_ZONES: usize = 3;
+
+/// What [`Axis::locate`] needs of one zone, in a fixed-size table so that the lookup runs
+/// without loops or bounds checks (it runs several times per molecule and step).
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Lookup {
+    /// Zone start, m (+∞ for an unused entry, which no coordinate reaches).
+    start: f64,
+    inv_width: f64,
+    /// Index of the zone's first cell.
+    offset: usize,
+    /// Index of the zone's last cell relative to its first, as a float (for the clamp).
+    last: f64,
+}
+
 /// Edges and lookup of a coordinate split into consecutive zones.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Axis {
@@ -41,7 +57,7 @@ pub struct Axis {
     #[serde(skip)]
     offsets: Vec<usize>,
     #[serde(skip)]
-    inv_width: Vec<f64>,
+    lookup: [Lookup; MAX_ZONES],
 }
 
 impl Axis {
@@ -56,11 +72,28 @@ impl Axis {
         for z in &zones {
             offsets.push(offsets.last().unwrap() + z.count);
         }
-        let inv_width = zones.iter().map(|z| 1.0 / z.width).collect();
+        assert!(
+            zones.len() <= MAX_ZONES,
+            "at most {MAX_ZONES} zones per axis"
+        );
+        let mut lookup = [Lookup {
+            start: f64::INFINITY,
+            inv_width: 0.0,
+            offset: 0,
+            last: 0.0,
+        }; MAX_ZONES];
+        for (k, z) in zones.iter().enumerate() {
+            lookup[k] = Lookup {
+                start: z.start,
+                inv_width: 1.0 / z.width,
+                offset: offsets[k],
+                last: (z.count - 1) as f64,
+            };
+        }
         Axis {
             zones,
             offsets,
-            inv_width,
+            lookup,
         }
     }
 
@@ -77,17 +110,16 @@ impl Axis {
     /// Cell index of coordinate x and the fractional position inside the cell in [0, 1).
     #[inline]
     pub fn locate(&self, x: f64) -> (usize, f64) {
-        let mut k = 0;
-        while k + 1 < self.zones.len() && x >= self.zones[k + 1].start {
-            k += 1;
-        }
-        let z = &self.zones[k];
-        let u = ((x - z.start) * self.inv_width[k]).max(0.0);
-        let i = (u as usize).min(z.count - 1);
-        (
-            self.offsets[k] + i,
-            (u - i as f64).clamp(0.0, 0.999_999_999),
-        )
+        // Zone starts increase, so the zone is the number of later starts at or below x; the
+        // first zone also takes every x below its start (clamped to its first cell).
+        let k = usize::from(x >= self.lookup[1].start) + usize::from(x >= self.lookup[2].start);
+        let z = &self.lookup[k];
+        let u = ((x - z.start) * z.inv_width).max(0.0);
+        // Clamped first, the float is a small non-negative integer part (max maps NaN to 0),
+        // so the conversion to i32 is exact and needs none of the range fix-ups that a
+        // conversion to usize compiles to.
+        let i = u.min(z.last) as i32 as usize;
+        (z.offset + i, (u - i as f64).clamp(0.0, 0.999_999_999))
     }
 
     /// Lower and upper edge of cell i.
@@ -200,6 +232,9 @@ impl Grid {
     pub fn key(&self, z: f64, r: f64) -> usize {
         let (iz, fz) = self.z.locate(z);
         let (ir, fr) = self.r.locate(r);
+        if self.sub == 1 {
+            return iz * self.r.len() + ir;
+        }
         let s = self.sub as f64;
         let sub = (fz * s) as usize * self.sub + (fr * s) as usize;
         (iz * self.r.len() + ir) * self.subcells() + sub

@@ -124,6 +124,10 @@ enum Command {
         /// Print JSON instead of text.
         #[arg(long)]
         json: bool,
+        /// Run one workload only: `a` (free-molecular moves) or `b` (DSMC at δ ≈ 1), for
+        /// profiling.
+        #[arg(long, value_parser = ["a", "b"])]
+        only: Option<String>,
     },
 }
 
@@ -294,7 +298,11 @@ fn other(command: Command) -> anyhow::Result<()> {
             }
             Ok(())
         }
-        Command::Bench { threads, json } => {
+        Command::Bench {
+            threads,
+            json,
+            only,
+        } => {
             if threads == Some(0) {
                 return Err(kinflux::Error::Input(
                     "--threads 0: expected at least 1 thread".into(),
@@ -305,7 +313,12 @@ fn other(command: Command) -> anyhow::Result<()> {
                 .num_threads(threads.unwrap_or(0))
                 .build()?;
             let n = pool.current_num_threads();
-            let report = pool.install(|| kinflux::bench::run(n));
+            let selection = match only.as_deref() {
+                Some("a") => kinflux::bench::Selection::FreeMolecular,
+                Some("b") => kinflux::bench::Selection::Dsmc,
+                _ => kinflux::bench::Selection::All,
+            };
+            let report = pool.install(|| kinflux::bench::run(n, selection));
             if json {
                 println!("{}", serde_json::to_string_pretty(&report)?);
             } else {
@@ -318,6 +331,12 @@ fn other(command: Command) -> anyhow::Result<()> {
                     report.copy_bandwidth_single_thread_gb_s,
                     report.copy_bandwidth_all_threads_gb_s
                 );
+                if let Some(mem) = &report.memory {
+                    println!(
+                        "memory: case (b) with {} molecules after {} steps: {:.0} B/molecule resident growth, {:.0} B/molecule in the per-molecule buffers",
+                        mem.molecules, mem.steps, mem.resident_growth_bytes_per_molecule, mem.buffer_bytes_per_molecule
+                    );
+                }
                 for w in &report.workloads {
                     println!("{}:", w.name);
                     println!(
@@ -330,12 +349,17 @@ fn other(command: Command) -> anyhow::Result<()> {
                     );
                     let t = &w.stage_times;
                     println!(
-                        "  stages (s): move {:.2}, sort {:.2}, collide {:.2}, inject {:.2}, compact {:.2}, release {:.2}",
-                        t.move_s, t.sort_s, t.collide_s, t.inject_s, t.compact_s, t.release_s
+                        "  stages (s): move {:.2}, sort {:.2}, collide {:.2}, sample {:.2}, inject {:.2}, compact {:.2}, release {:.2}, record {:.3}",
+                        t.move_s, t.sort_s, t.collide_s, t.sample_s, t.inject_s, t.compact_s, t.release_s, t.record_s
                     );
                     println!(
-                        "  memory: {} B/molecule in the arrays, {:.0} B/molecule resident; modelled {:.0} B per particle-step = {:.1} % of the copy bandwidth",
-                        w.array_bytes_per_molecule, w.resident_bytes_per_molecule, w.modelled_bytes_per_particle_step, 100.0 * w.fraction_of_copy_bandwidth
+                        "  memory per molecule: {} B in the arrays, {:.0} B in all per-molecule buffers, {:.0} B resident growth during the run, {:.0} B whole process resident",
+                        w.array_bytes_per_molecule, w.buffer_bytes_per_molecule, w.resident_growth_bytes_per_molecule, w.resident_bytes_per_molecule
+                    );
+                    println!(
+                        "  modelled {:.0} B per particle-step = {:.1} % of the copy bandwidth",
+                        w.modelled_bytes_per_particle_step,
+                        100.0 * w.fraction_of_copy_bandwidth
                     );
                 }
             }

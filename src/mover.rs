@@ -9,7 +9,7 @@
 //! Invariant: after `advance` returns `Fate::Stays`, the molecule is inside the gas region.
 
 pub use crate::geometry::Flight;
-use crate::geometry::{fly, Domain, SurfaceId, SurfaceRole, SurfaceShape};
+use crate::geometry::{fly, land, Domain, SurfaceId, SurfaceRole, SurfaceShape};
 use rand::Rng;
 use rand_distr::StandardNormal;
 
@@ -44,8 +44,46 @@ pub const MAX_HITS_PER_STEP: usize = 10_000;
 /// when the molecule was re-emitted diffusely by a wall (its internal energy must then be
 /// resampled at the wall temperature by the caller; specular hits keep it).
 #[allow(clippy::too_many_arguments)]
-#[inline]
+#[inline(always)] // the fast path belongs in the caller's loop; the search is a call
 pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
+    geom: &Domain,
+    wall: &WallReflection,
+    m: &mut Flight,
+    dt: f64,
+    last: Option<SurfaceId>,
+    z_count: f64,
+    rng: &mut R,
+    on_cross: &mut F,
+    diffused: &mut bool,
+) -> Fate {
+    // Fast path: a flight that stays inside its region meets no surface, and one that does not
+    // pass the measurement plane crosses nothing. (The same end point as the search below
+    // would give: `fly` computes it by the same expressions.) It holds whatever surface the
+    // molecule starts on, so entering molecules take it too.
+    {
+        let x = m.r + m.vr * dt;
+        let y = geom.symmetry.in_plane(m.vt) * dt;
+        let zn = m.z + m.vz * dt;
+        let r2 = x * x + y * y;
+        let crosses = (m.z < z_count && zn > z_count) || (m.z > z_count && zn < z_count);
+        // (r² along a straight flight is convex in time, about an axis and across a mirror
+        // plane alike, so the ends bound the whole flight)
+        if !crosses && geom.flight_stays_in_region(m.z, m.r * m.r, zn, r2) {
+            let (zn, rn, vrn, vtn) = land(geom.symmetry, zn, x, y, r2, m.vr, m.vt);
+            m.z = zn;
+            m.r = rn;
+            m.vr = vrn;
+            m.vt = vtn;
+            return Fate::Stays;
+        }
+    }
+    search(geom, wall, m, dt, last, z_count, rng, on_cross, diffused)
+}
+
+/// The general case of [`advance`]: surface search, hits and crossings, hit after hit.
+#[allow(clippy::too_many_arguments)]
+#[inline(never)]
+fn search<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
     geom: &Domain,
     wall: &WallReflection,
     m: &mut Flight,
@@ -57,19 +95,6 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
     diffused: &mut bool,
 ) -> Fate {
     let mut remaining = dt;
-    // Fast path: a flight shorter than the clearance meets no surface and no plane.
-    if last.is_none() {
-        let reach2 = (m.vz * m.vz + m.vr * m.vr + m.vt * m.vt) * dt * dt;
-        let c = geom.clearance(m.z, m.r);
-        if c > 0.0 && reach2 < c * c {
-            let (zn, rn, vrn, vtn) = fly(geom.symmetry, m.z, m.r, m.vz, m.vr, m.vt, dt);
-            m.z = zn;
-            m.r = rn;
-            m.vr = vrn;
-            m.vt = vtn;
-            return Fate::Stays;
-        }
-    }
     for _ in 0..MAX_HITS_PER_STEP {
         let hit = geom.first_hit(m, remaining, last);
         let t = hit.map_or(remaining, |(t, _)| t);

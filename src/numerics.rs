@@ -36,7 +36,9 @@ use crate::weights::RadialWeights;
 use serde::Serialize;
 
 /// Molecules per work chunk of the move stage (fixed: results must not depend on threads).
-pub const CHUNK: usize = 4096;
+/// Small enough that the 35 000 molecules of a δ ≈ 1 run make 17 chunks, which two threads
+/// share evenly (with 9 chunks one thread has a chunk more: 6 % idle).
+pub const CHUNK: usize = 2048;
 
 /// Default simulated molecules in the initial fill, free-molecular mode.
 pub const DEFAULT_MOLECULES_FREE_MOLECULAR: u64 = 100_000;

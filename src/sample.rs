@@ -17,6 +17,7 @@
 use crate::constants::BOLTZMANN;
 use crate::numerics::Plan;
 use crate::particles::Molecules;
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 /// Number of per-cell accumulators besides the species counts.
@@ -57,24 +58,78 @@ impl FieldSampler {
         }
     }
 
-    /// Add one step's molecules. `cell_of(i)` gives molecule i's cell.
-    pub fn sample(&mut self, plan: &Plan, m: &Molecules, cell_of: impl Fn(usize) -> usize) {
+    /// Add one step's molecules, sorted by cell: `offsets[c · subcells]` is the first molecule
+    /// of cell c (the sort's offsets). Parallel over blocks of `block` cells, each adding its
+    /// own cells' molecules in array order, so the sums do not depend on the thread count.
+    pub fn sample_sorted(
+        &mut self,
+        plan: &Plan,
+        m: &Molecules,
+        offsets: &[u32],
+        subcells: usize,
+        block: usize,
+    ) {
         let ns = self.species;
-        for i in 0..m.len() {
-            let c = cell_of(i);
-            let s = m.species[i] as usize;
-            let mass = plan.masses[s];
-            self.counts[c * ns + s] += 1.0;
-            let a = &mut self.moments[c * MOMENTS..(c + 1) * MOMENTS];
-            a[M_MASS] += mass;
-            a[M_PZ] += mass * m.vz[i];
-            a[M_PR] += mass * m.vr[i];
-            a[M_PT] += mass * m.vt[i];
-            a[M_EZ] += mass * m.vz[i] * m.vz[i];
-            a[M_ER] += mass * m.vr[i] * m.vr[i];
-            a[M_ET] += mass * m.vt[i] * m.vt[i];
-            a[M_EROT] += m.erot[i];
-            a[M_ZETA] += plan.rot_dof[s] as f64;
+        self.counts
+            .par_chunks_mut(block * ns)
+            .zip(self.moments.par_chunks_mut(block * MOMENTS))
+            .enumerate()
+            .for_each(|(b, (counts, moments))| {
+                for k in 0..counts.len() / ns {
+                    let c = b * block + k;
+                    let lo = offsets[c * subcells] as usize;
+                    let hi = offsets[(c + 1) * subcells] as usize;
+                    let a = &mut moments[k * MOMENTS..(k + 1) * MOMENTS];
+                    let n = &mut counts[k * ns..(k + 1) * ns];
+                    for i in lo..hi {
+                        add(plan, m, i, n, a);
+                    }
+                }
+            });
+        self.steps += 1;
+    }
+
+    /// Add one step's molecules in any order; `cell_of(i)` gives molecule i's cell. Parallel
+    /// over fixed blocks of `block` molecules, each summing into its own partial accumulators
+    /// (`partial`, reused from step to step), which are then added in block order, so the sums
+    /// do not depend on the thread count.
+    pub fn sample(
+        &mut self,
+        plan: &Plan,
+        m: &Molecules,
+        cell_of: impl Fn(usize) -> usize + Sync,
+        block: usize,
+        partial: &mut Vec<f64>,
+    ) {
+        let ns = self.species;
+        let width = self.cells * (ns + MOMENTS);
+        let blocks = m.len().div_ceil(block);
+        partial.clear();
+        partial.resize(blocks * width, 0.0);
+        partial
+            .par_chunks_mut(width.max(1))
+            .enumerate()
+            .for_each(|(b, acc)| {
+                let (counts, moments) = acc.split_at_mut(self.cells * ns);
+                for i in b * block..((b + 1) * block).min(m.len()) {
+                    let c = cell_of(i);
+                    add(
+                        plan,
+                        m,
+                        i,
+                        &mut counts[c * ns..(c + 1) * ns],
+                        &mut moments[c * MOMENTS..(c + 1) * MOMENTS],
+                    );
+                }
+            });
+        for acc in partial.chunks(width.max(1)) {
+            let (counts, moments) = acc.split_at(self.cells * ns);
+            for (a, b) in self.counts.iter_mut().zip(counts) {
+                *a += b;
+            }
+            for (a, b) in self.moments.iter_mut().zip(moments) {
+                *a += b;
+            }
         }
         self.steps += 1;
     }
@@ -152,6 +207,25 @@ impl FieldSampler {
         }
         f
     }
+}
+
+/// Add molecule i to its cell's species counts `n` and moments `a`.
+#[inline]
+fn add(plan: &Plan, m: &Molecules, i: usize, n: &mut [f64], a: &mut [f64]) {
+    let a: &mut [f64; MOMENTS] = a.try_into().expect("one cell's moments");
+    let s = m.species[i] as usize;
+    let mass = plan.masses[s];
+    let (vz, vr, vt) = (f64::from(m.vz[i]), f64::from(m.vr[i]), f64::from(m.vt[i]));
+    n[s] += 1.0;
+    a[M_MASS] += mass;
+    a[M_PZ] += mass * vz;
+    a[M_PR] += mass * vr;
+    a[M_PT] += mass * vt;
+    a[M_EZ] += mass * vz * vz;
+    a[M_ER] += mass * vr * vr;
+    a[M_ET] += mass * vt * vt;
+    a[M_EROT] += f64::from(m.erot[i]);
+    a[M_ZETA] += plan.rot_dof[s] as f64;
 }
 
 /// Macroscopic fields on the (z, r) grid, each a row-major nz × nr array (cell = iz · nr + ir).

@@ -1,12 +1,17 @@
 //! The step loop: one simulation of one case, stage by stage.
 //!
 //! A step is a readable list of stages: move (wall hits, aperture counting, radial
-//! reweighting) → compact → inject from the reservoirs → release delayed clones → sort by cell
-//! → collide → record the flux → sample the fields (after start-up). The move runs in parallel over fixed chunks of [`CHUNK`]
-//! molecules and the collisions over fixed blocks of cells, each work unit with its own random
-//! stream keyed by (seed, step, stage, unit); results are merged in unit order, so a run is
-//! bit-identical for any number of threads. Invariants: after every step no molecule lies
-//! inside a wall or outside the domain, and the particle balance
+//! reweighting; in free-molecular mode each chunk's survivors are compacted to its start) →
+//! close the gaps between chunks (free-molecular mode) → inject from the reservoirs → release delayed
+//! clones → sort by cell (DSMC mode; the sort also drops the molecules that left) → collide →
+//! record the flux → sample the fields (after start-up). The move runs in parallel over fixed
+//! chunks of [`CHUNK`] molecules, the collisions and the sampling over fixed blocks of cells,
+//! each work unit with its own random stream keyed by (seed, step, stage, unit); results are
+//! merged in unit order, so a run is bit-identical for any number of threads. The sort is a
+//! stable counting sort, whose result is unique however it is split between threads. Buffers
+//! that scale with the molecules (sort keys, one spare column per element type, partial field
+//! sums) live in the simulation and are reused from step to step. Invariants: after every step
+//! no molecule lies inside a wall or outside the domain, and the particle balance
 //! `initial + injected + released − left − deleted = population` holds exactly.
 
 use crate::collide::{collide_cell, CellMolecules, CollisionStats, Scratch};
@@ -15,7 +20,7 @@ use crate::geometry::SurfaceRole;
 use crate::monitor::{batch_means, BatchEstimate, StopReason};
 use crate::mover::{advance, Fate, Flight};
 use crate::numerics::{Plan, CHUNK};
-use crate::particles::{Molecules, DEAD};
+use crate::particles::{make_room, Molecules, Stored, DEAD};
 use crate::sample::FieldSampler;
 use crate::streams::{stream, Stage};
 use crate::weights::CLONE_DELAY_MAX;
@@ -23,8 +28,13 @@ use rand::Rng;
 use rayon::prelude::*;
 use std::time::{Duration, Instant};
 
-/// Cells per collision work block (fixed, so results do not depend on the thread count).
+/// Cells per collision and sampling work block (fixed, so results do not depend on the thread
+/// count).
 pub const CELL_BLOCK: usize = 64;
+
+/// Molecules per work block of the free-molecular field sampling (fixed, like [`CHUNK`]; each
+/// block has partial sums over all cells, so blocks are larger than the move's chunks).
+pub const SAMPLE_BLOCK: usize = 4 * CHUNK;
 
 /// A clone waiting for release (see `weights`).
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -64,6 +74,8 @@ struct MoveReport {
     left_down: u64,
     deleted: u64,
     clones: Vec<PendingClone>,
+    /// Molecules of the chunk still in the domain (the move stage).
+    kept: usize,
 }
 
 impl MoveReport {
@@ -74,6 +86,7 @@ impl MoveReport {
             left_down: 0,
             deleted: 0,
             clones: Vec::new(),
+            kept: 0,
         }
     }
 }
@@ -82,13 +95,17 @@ impl MoveReport {
 /// energy, species) and the report of their entry flights.
 type InflowUnit = (u64, Vec<(Flight, f64, u8)>, MoveReport);
 
-/// Per-step buffers of the sort (never part of the saved state).
+/// Buffers of the sort, reused from step to step (never part of the saved state).
 #[derive(Default)]
 struct SortScratch {
+    /// Sort key of each molecule, then its destination.
     keys: Vec<u32>,
+    /// Per-block key counts, then per-block write cursors (block-major).
     counts: Vec<u32>,
-    source: Vec<u32>,
-    spare: Molecules,
+    /// The one spare column per element type that a column is reordered into.
+    f64_column: Vec<f64>,
+    stored_column: Vec<Stored>,
+    u8_column: Vec<u8>,
 }
 
 /// Wall time spent in each stage of the step (for the benchmark and the run summary).
@@ -165,6 +182,12 @@ pub struct Simulation {
     /// Called about every `.0` of wall time with the simulation, to save a checkpoint.
     pub checkpoint_hook: Option<CheckpointHook>,
     sort: SortScratch,
+    /// Partial field sums of the unsorted (free-molecular) sampling, reused from step to step.
+    sample_partial: Vec<f64>,
+    /// Survivors per move chunk, compacted to the chunk's start (free-molecular mode).
+    kept: Vec<usize>,
+    /// Leading molecules whose sort keys the move has written (DSMC mode).
+    keyed: usize,
 }
 
 impl Simulation {
@@ -205,6 +228,9 @@ impl Simulation {
             interrupt: None,
             checkpoint_hook: None,
             sort: SortScratch::default(),
+            sample_partial: Vec::new(),
+            kept: Vec::new(),
+            keyed: 0,
         }
     }
 
@@ -248,7 +274,11 @@ impl Simulation {
     pub fn step(&mut self) {
         let mut t = self.times;
         let mut crossings = timed(&mut t.move_s, || self.move_molecules());
-        timed(&mut t.compact_s, || self.molecules.compact());
+        // With collisions the sort drops the dead molecules, after the newcomers joined.
+        if self.plan.collisions.is_none() {
+            let (m, kept) = (&mut self.molecules, &self.kept);
+            timed(&mut t.compact_s, || m.close_gaps(CHUNK, kept));
+        }
         timed(&mut t.inject_s, || self.inject(&mut crossings));
         // Clones join at the end of their release step, where the time-shifted copy of the
         // original sits at the cloning position; they fly from the next step on.
@@ -269,8 +299,14 @@ impl Simulation {
             .push(self.molecules.len() as u64);
         if self.sampling() {
             let (plan, m, f) = (&self.plan, &self.molecules, &mut self.fields);
+            let (offsets, partial) = (&self.cell_offsets, &mut self.sample_partial);
             timed(&mut t.sample_s, || {
-                f.sample(plan, m, |i| plan.grid.cell(m.z[i], m.r[i]))
+                if plan.collisions.is_some() {
+                    f.sample_sorted(plan, m, offsets, plan.grid.subcells(), CELL_BLOCK)
+                } else {
+                    let cell_of = |i: usize| plan.grid.cell(m.z[i], m.r[i]);
+                    f.sample(plan, m, cell_of, SAMPLE_BLOCK, partial)
+                }
             });
         }
         self.times = t;
@@ -290,6 +326,12 @@ impl Simulation {
         let step = self.step;
         let mut released = 0;
         let mol = &mut self.molecules;
+        mol.reserve(
+            self.pending
+                .iter()
+                .filter(|c| c.release_step <= step)
+                .count(),
+        );
         self.pending.retain(|c| {
             if c.release_step <= step {
                 mol.push(&c.flight, c.erot, c.species);
@@ -308,55 +350,86 @@ impl Simulation {
         let step = self.step;
         let seed = plan.case.solver.seed;
         let nspecies = plan.masses.len();
+        let compacting = plan.collisions.is_none();
+        let grid = &plan.grid;
+        let (rows, one_subcell) = (grid.r.len(), grid.sub == 1);
         let m = &mut self.molecules;
         self.particle_steps += m.len() as u64;
-        let reports: Vec<MoveReport> =
-            m.z.par_chunks_mut(CHUNK)
-                .zip(m.r.par_chunks_mut(CHUNK))
-                .zip(m.vz.par_chunks_mut(CHUNK))
-                .zip(m.vr.par_chunks_mut(CHUNK))
-                .zip(m.vt.par_chunks_mut(CHUNK))
-                .zip(m.erot.par_chunks_mut(CHUNK))
-                .zip(m.species.par_chunks_mut(CHUNK))
-                .enumerate()
-                .map(|(ci, ((((((z, r), vz), vr), vt), erot), sp))| {
-                    let mut rng = stream(seed, step, Stage::Move, ci as u64);
-                    let mut rep = MoveReport::new(nspecies);
-                    for i in 0..z.len() {
-                        let s = sp[i] as usize;
-                        let mut f = Flight {
-                            z: z[i],
-                            r: r[i],
-                            vz: vz[i],
-                            vr: vr[i],
-                            vt: vt[i],
-                        };
-                        match fly_one(
-                            plan,
-                            step,
-                            &mut f,
-                            &mut erot[i],
-                            s,
-                            plan.dt,
-                            None,
-                            &mut rng,
-                            &mut rep,
-                        ) {
-                            Fate::Stays => {
-                                z[i] = f.z;
-                                r[i] = f.r;
-                                vz[i] = f.vz;
-                                vr[i] = f.vr;
-                                vt[i] = f.vt;
+        // With collisions the move also writes each molecule's sort key: it knows the new
+        // radial row already (the weight row is the grid row), which saves the sort a pass and
+        // a lookup. The keys array has the molecules' length in both modes (zip stops at the
+        // shortest), but only the DSMC mode writes it.
+        let keys = &mut self.sort.keys;
+        let grow = m.len().saturating_sub(keys.len());
+        make_room(keys, grow);
+        keys.resize(m.len(), 0);
+        self.keyed = m.len();
+        let reports: Vec<MoveReport> = m
+            .z
+            .par_chunks_mut(CHUNK)
+            .zip(m.r.par_chunks_mut(CHUNK))
+            .zip(m.vz.par_chunks_mut(CHUNK))
+            .zip(m.vr.par_chunks_mut(CHUNK))
+            .zip(m.vt.par_chunks_mut(CHUNK))
+            .zip(m.erot.par_chunks_mut(CHUNK))
+            .zip(m.species.par_chunks_mut(CHUNK))
+            .zip(keys.par_chunks_mut(CHUNK))
+            .enumerate()
+            .map(|(ci, (((((((z, r), vz), vr), vt), erot), sp), key))| {
+                let mut rng = stream(seed, step, Stage::Move, ci as u64);
+                let mut rep = MoveReport::new(nspecies);
+                // Survivors are written to `w` ≤ i: compacted inside the chunk while
+                // moving (free-molecular mode), or left in place and the dead marked (DSMC
+                // mode, where the sort drops them).
+                let mut w = 0;
+                for i in 0..z.len() {
+                    let s = sp[i] as usize;
+                    let mut f = Flight {
+                        z: z[i],
+                        r: r[i],
+                        vz: f64::from(vz[i]),
+                        vr: f64::from(vr[i]),
+                        vt: f64::from(vt[i]),
+                    };
+                    let mut e = f64::from(erot[i]);
+                    let mut row = 0;
+                    match fly_one(
+                        plan, step, &mut f, &mut e, s, plan.dt, None, &mut rng, &mut rep, &mut row,
+                    ) {
+                        Fate::Stays => {
+                            if !compacting {
+                                key[i] = if one_subcell {
+                                    (grid.z.locate(f.z).0 * rows + row) as u32
+                                } else {
+                                    grid.key(f.z, f.r) as u32
+                                };
                             }
-                            Fate::Left(_) => sp[i] = DEAD,
+                            let j = if compacting { w } else { i };
+                            z[j] = f.z;
+                            r[j] = f.r;
+                            vz[j] = f.vz as Stored;
+                            vr[j] = f.vr as Stored;
+                            vt[j] = f.vt as Stored;
+                            erot[j] = e as Stored;
+                            sp[j] = s as u8;
+                            w += 1;
+                        }
+                        Fate::Left(_) => {
+                            if !compacting {
+                                sp[i] = DEAD;
+                                key[i] = DEAD_KEY;
+                            }
                         }
                     }
-                    rep
-                })
-                .collect();
+                }
+                rep.kept = w;
+                rep
+            })
+            .collect();
         let mut total = Crossings::new(nspecies);
+        self.kept.clear();
         for rep in reports {
+            self.kept.push(rep.kept);
             total.merge(&rep.crossings);
             self.balance.left_upstream += rep.left_up;
             self.balance.left_downstream += rep.left_down;
@@ -406,6 +479,7 @@ impl Simulation {
                         Some(el.surface),
                         &mut rng,
                         &mut rep,
+                        &mut 0,
                     );
                     if fate == Fate::Stays {
                         born.push((f, erot, el.species));
@@ -414,6 +488,8 @@ impl Simulation {
                 (n, born, rep)
             })
             .collect();
+        self.molecules
+            .reserve(units.iter().map(|u| u.1.len()).sum::<usize>());
         for (n, born, rep) in units {
             self.balance.injected += n;
             self.balance.left_upstream += rep.left_up;
@@ -427,47 +503,89 @@ impl Simulation {
         }
     }
 
-    /// Stage: counting sort of the molecules by (cell, subcell); the arrays are reordered so
-    /// every cell's molecules are contiguous and ordered by subcell.
+    /// Stage: stable counting sort of the molecules by (cell, subcell), dropping the molecules
+    /// marked dead (this is the compaction of the DSMC mode). Every cell's molecules end up
+    /// contiguous, ordered by subcell, and in their previous relative order inside a subcell.
+    ///
+    /// A stable sort has exactly one result, so the split into sort blocks (one per thread)
+    /// cannot change it. The permutation is applied column by column through one reused
+    /// scratch column per element type instead of a second copy of every array: that is what
+    /// keeps the resident memory near the arrays' own footprint.
     fn sort_by_cell(&mut self) {
         let grid = &self.plan.grid;
         let nkeys = grid.cells() * grid.subcells();
         let m = &mut self.molecules;
         let n = m.len();
         let s = &mut self.sort;
+        let grow = n.saturating_sub(s.keys.len());
+        make_room(&mut s.keys, grow);
         s.keys.resize(n, 0);
-        s.keys
+        // The move keyed the molecules it moved; the ones that joined since need keys.
+        let keyed = self.keyed.min(n);
+        s.keys[keyed..]
             .par_chunks_mut(CHUNK)
-            .zip(m.z.par_chunks(CHUNK))
-            .zip(m.r.par_chunks(CHUNK))
-            .for_each(|((k, z), r)| {
+            .zip(m.z[keyed..].par_chunks(CHUNK))
+            .zip(m.r[keyed..].par_chunks(CHUNK))
+            .zip(m.species[keyed..].par_chunks(CHUNK))
+            .for_each(|(((k, z), r), sp)| {
                 for i in 0..k.len() {
-                    k[i] = grid.key(z[i], r[i]) as u32;
+                    k[i] = if sp[i] == DEAD {
+                        DEAD_KEY
+                    } else {
+                        grid.key(z[i], r[i]) as u32
+                    };
                 }
             });
+        // Per-block histograms (block-major), turned into per-block write cursors.
+        let blocks = rayon::current_num_threads().clamp(1, n.div_ceil(CHUNK).max(1));
+        let block_len = n.div_ceil(blocks).max(1);
         s.counts.clear();
-        s.counts.resize(nkeys + 1, 0);
-        for &k in &s.keys {
-            s.counts[k as usize + 1] += 1;
-        }
+        s.counts.resize(blocks * nkeys, 0);
+        s.counts
+            .par_chunks_mut(nkeys)
+            .zip(s.keys.par_chunks(block_len))
+            .for_each(|(c, k)| {
+                for &k in k {
+                    if k != DEAD_KEY {
+                        c[k as usize] += 1;
+                    }
+                }
+            });
+        self.cell_offsets.clear();
+        self.cell_offsets.reserve(nkeys + 1);
+        let mut pos = 0u32;
         for k in 0..nkeys {
-            s.counts[k + 1] += s.counts[k];
-        }
-        self.cell_offsets.clone_from(&s.counts);
-        // source[position] = molecule index (stable: order within a key is kept)
-        s.source.resize(n, 0);
-        {
-            let next = &mut s.counts;
-            for (i, &k) in s.keys.iter().enumerate() {
-                let pos = next[k as usize];
-                s.source[pos as usize] = i as u32;
-                next[k as usize] += 1;
+            self.cell_offsets.push(pos);
+            for b in 0..blocks {
+                let c = &mut s.counts[b * nkeys + k];
+                let count = *c;
+                *c = pos;
+                pos += count;
             }
         }
-        let src = &s.source;
-        let sp = &mut s.spare;
-        gather_all(m, sp, src);
-        std::mem::swap(m, sp);
+        self.cell_offsets.push(pos);
+        let alive = pos as usize;
+        // Each molecule's key becomes its destination (DEAD_KEY stays: not placed).
+        s.counts
+            .par_chunks_mut(nkeys)
+            .zip(s.keys.par_chunks_mut(block_len))
+            .for_each(|(cursor, k)| {
+                for k in k.iter_mut() {
+                    if *k != DEAD_KEY {
+                        let c = &mut cursor[*k as usize];
+                        *k = *c;
+                        *c += 1;
+                    }
+                }
+            });
+        let dest = &s.keys;
+        scatter(&mut m.z, &mut s.f64_column, dest, alive);
+        scatter(&mut m.r, &mut s.f64_column, dest, alive);
+        scatter(&mut m.vz, &mut s.stored_column, dest, alive);
+        scatter(&mut m.vr, &mut s.stored_column, dest, alive);
+        scatter(&mut m.vt, &mut s.stored_column, dest, alive);
+        scatter(&mut m.erot, &mut s.stored_column, dest, alive);
+        scatter(&mut m.species, &mut s.u8_column, dest, alive);
     }
 
     /// Stage: NTC collisions in every cell, in parallel over fixed blocks of cells.
@@ -489,10 +607,10 @@ impl Simulation {
             first_cell: usize,
             z: &'a [f64],
             r: &'a [f64],
-            vz: &'a mut [f64],
-            vr: &'a mut [f64],
-            vt: &'a mut [f64],
-            erot: &'a mut [f64],
+            vz: &'a mut [Stored],
+            vr: &'a mut [Stored],
+            vt: &'a mut [Stored],
+            erot: &'a mut [Stored],
             species: &'a [u8],
             scm: &'a mut [f64],
         }
@@ -613,6 +731,27 @@ impl Simulation {
         }
     }
 
+    /// Heap bytes held by the per-molecule buffers: the molecule arrays and the sort's
+    /// scratch, at their allocated capacity (the memory a large run needs per molecule).
+    pub fn molecule_buffer_bytes(&self) -> usize {
+        fn bytes<T>(v: &Vec<T>) -> usize {
+            v.capacity() * std::mem::size_of::<T>()
+        }
+        let m = &self.molecules;
+        let s = &self.sort;
+        bytes(&m.z)
+            + bytes(&m.r)
+            + bytes(&m.vz)
+            + bytes(&m.vr)
+            + bytes(&m.vt)
+            + bytes(&m.erot)
+            + bytes(&m.species)
+            + bytes(&s.keys)
+            + bytes(&s.f64_column)
+            + bytes(&s.stored_column)
+            + bytes(&s.u8_column)
+    }
+
     /// Simulated molecules in the domain (clones waiting for release are not counted).
     pub fn population(&self) -> u64 {
         self.molecules.len() as u64
@@ -698,37 +837,56 @@ impl Simulation {
     }
 }
 
-/// dst[k] = src[index[k]] for every molecule array, in one parallel pass.
-fn gather_all(src: &Molecules, dst: &mut Molecules, index: &[u32]) {
-    let n = index.len();
-    dst.z.resize(n, 0.0);
-    dst.r.resize(n, 0.0);
-    dst.vz.resize(n, 0.0);
-    dst.vr.resize(n, 0.0);
-    dst.vt.resize(n, 0.0);
-    dst.erot.resize(n, 0.0);
-    dst.species.resize(n, 0);
-    dst.z
-        .par_chunks_mut(CHUNK)
-        .zip(dst.r.par_chunks_mut(CHUNK))
-        .zip(dst.vz.par_chunks_mut(CHUNK))
-        .zip(dst.vr.par_chunks_mut(CHUNK))
-        .zip(dst.vt.par_chunks_mut(CHUNK))
-        .zip(dst.erot.par_chunks_mut(CHUNK))
-        .zip(dst.species.par_chunks_mut(CHUNK))
-        .zip(index.par_chunks(CHUNK))
-        .for_each(|(((((((z, r), vz), vr), vt), erot), sp), ix)| {
-            for (k, &i) in ix.iter().enumerate() {
-                let i = i as usize;
-                z[k] = src.z[i];
-                r[k] = src.r[i];
-                vz[k] = src.vz[i];
-                vr[k] = src.vr[i];
-                vt[k] = src.vt[i];
-                erot[k] = src.erot[i];
-                sp[k] = src.species[i];
+/// Sort key of a molecule marked dead: it is not placed, so the sort also compacts.
+const DEAD_KEY: u32 = u32::MAX;
+
+/// Reorder one column: molecule i goes to position `dest[i]` (skipped when `DEAD_KEY`); `dest`
+/// maps the live molecules one-to-one onto 0..alive. The result is built in `spare` and the
+/// two vectors are swapped, so the old column becomes the next column's scratch.
+fn scatter<T: Copy + Send + Sync>(
+    column: &mut Vec<T>,
+    spare: &mut Vec<T>,
+    dest: &[u32],
+    alive: usize,
+) {
+    spare.clear();
+    make_room(spare, alive);
+    let out = Scatter(spare.as_mut_ptr(), alive);
+    column
+        .par_chunks(CHUNK)
+        .zip(dest.par_chunks(CHUNK))
+        .for_each(|(col, d)| {
+            for (&v, &d) in col.iter().zip(d) {
+                if d != DEAD_KEY {
+                    out.write(d as usize, v);
+                }
             }
         });
+    // SAFETY: capacity ≥ alive (make_room), and the loop above wrote every position of
+    // 0..alive exactly once, because `dest` maps the live molecules one-to-one onto it (the
+    // cursors of the counting sort enumerate exactly the positions 0..alive). Skipping the
+    // zero fill saves a pass over every column.
+    unsafe { spare.set_len(alive) };
+    std::mem::swap(column, spare);
+}
+
+/// Write access to the capacity of one vector, shared by the workers of a scatter.
+struct Scatter<T>(*mut T, usize);
+
+// SAFETY: the workers write through the pointer only at the positions of a one-to-one map
+// (`scatter`'s `dest`), so no two of them ever touch the same element, and nothing reads the
+// vector until the parallel loop has joined.
+unsafe impl<T: Send> Send for Scatter<T> {}
+unsafe impl<T: Send> Sync for Scatter<T> {}
+
+impl<T> Scatter<T> {
+    #[inline]
+    fn write(&self, i: usize, v: T) {
+        assert!(i < self.1, "destination out of range");
+        // SAFETY: within the allocated capacity (checked above) and written by exactly one
+        // worker (see the impls).
+        unsafe { self.0.add(i).write(v) }
+    }
 }
 
 /// How a run ended.
@@ -743,7 +901,7 @@ pub struct RunOutcome {
 /// changed radial row (see `weights`). Returns its fate; a molecule deleted by reweighting is
 /// reported as `Fate::Left(SurfaceRole::Wall)` and counted in `rep.deleted`.
 #[allow(clippy::too_many_arguments)]
-#[inline]
+#[inline(always)] // in the move loop's body: the call itself was a tenth of a move's cost
 fn fly_one<R: Rng>(
     plan: &Plan,
     step: u64,
@@ -754,12 +912,13 @@ fn fly_one<R: Rng>(
     last: Option<usize>,
     rng: &mut R,
     rep: &mut MoveReport,
+    row: &mut usize,
 ) -> Fate {
     let w = &plan.weights;
     let band0 = w.band(f.r);
     let weight = w.factor[band0];
     let crossings = &mut rep.crossings;
-    let (mass, inv_a) = (plan.masses[s], 1.0 / plan.geometry.radius);
+    let (mass, a) = (plan.masses[s], plan.geometry.radius);
     let mut diffused = false;
     let fate = advance(
         &plan.geometry,
@@ -769,7 +928,8 @@ fn fly_one<R: Rng>(
         last,
         plan.z_count,
         rng,
-        &mut |sign, r, cos| crossings.add(s, sign, weight, mass, r * inv_a, cos),
+        // The division happens only at a crossing, not once per molecule.
+        &mut |sign, r, cos| crossings.add(s, sign, weight, mass, r / a, cos),
         &mut diffused,
     );
     match fate {
@@ -788,6 +948,7 @@ fn fly_one<R: Rng>(
             crate::maxwell::rotational_energy(plan.rot_dof[s], plan.case.walls.temperature, rng);
     }
     let band1 = w.band(f.r);
+    *row = band1;
     if band1 != band0 {
         let ratio = weight / w.factor[band1];
         if ratio < 1.0 {

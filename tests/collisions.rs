@@ -439,6 +439,103 @@ fn helium_argon_mixture_equilibrates_conserving_energy() {
     }
 }
 
+/// The engine stores velocities as f32 (`particles::Stored`) and collides in f64. The same He/Ar
+/// relaxation with f32 storage: energy is then conserved up to the storage rounding, which the
+/// f64-storage test above excludes. Tolerance, from the rounding alone (no physics is
+/// loosened): each collision stores 3 components for each of its 2 molecules, each with a
+/// relative error of at most 2⁻²⁴, changing that molecule's kinetic energy e by at most
+/// 2⁻²³·e (to first order); so the drift is at most 2⁻²³ × 2 N_c × e_max (N_c collisions, e_max
+/// a bound on the energy of a colliding molecule; 50 kT of the hotter species is exceeded with
+/// probability e⁻⁵⁰). Conservation to f64 round-off of the arithmetic itself is the test above.
+#[test]
+fn f32_storage_conserves_energy_to_its_rounding() {
+    let he = gas::lookup_with("He", MolecularModel::Vhs).unwrap();
+    let ar = gas::lookup_with("Ar", MolecularModel::Vhs).unwrap();
+    let mix = Mixture {
+        components: vec![
+            Component {
+                species: he.clone(),
+                mole_fraction: 0.5,
+            },
+            Component {
+                species: ar.clone(),
+                mole_fraction: 0.5,
+            },
+        ],
+    };
+    let model = CollisionModel::new(&mix, RotationalRelaxation::Constant { z_rot: 5.0 });
+    let n = 20_000;
+    let (volume, density) = (1e-9, 1e21);
+    let fnum = density * volume / n as f64;
+    let mut rng = SmallRng::seed_from_u64(11);
+    let (mut vz, mut vr, mut vt) = (vec![0f32; n], vec![0f32; n], vec![0f32; n]);
+    let mut erot = vec![0f32; n];
+    let species: Vec<u8> = (0..n).map(|i| (i % 2) as u8).collect();
+    for i in 0..n {
+        let (t, m) = if i % 2 == 0 {
+            (200.0, he.mass)
+        } else {
+            (600.0, ar.mass)
+        };
+        let v = maxwellian(&mut rng, t, m);
+        (vz[i], vr[i], vt[i]) = (v[0] as f32, v[1] as f32, v[2] as f32);
+    }
+    let energy = |vz: &[f32], vr: &[f32], vt: &[f32]| -> f64 {
+        (0..n)
+            .map(|i| {
+                let m = model.masses[species[i] as usize];
+                let (a, b, c) = (f64::from(vz[i]), f64::from(vr[i]), f64::from(vt[i]));
+                0.5 * m * (a * a + b * b + c * c)
+            })
+            .sum()
+    };
+    let e0 = energy(&vz, &vr, &vt);
+    let mut scm: Vec<f64> = (0..4)
+        .map(|k| model.initial_sigma_cr_max(k / 2, k % 2, 1000.0))
+        .collect();
+    let (mut scratch, mut stats) = (Scratch::default(), CollisionStats::default());
+    let nu = model.equilibrium_rate(1, 1, density, 400.0);
+    let pos = vec![0.0; n];
+    let offsets = [0, n as u32];
+    for _ in 0..200 {
+        let mut cell = CellMolecules {
+            z: &pos,
+            r: &pos,
+            vz: &mut vz,
+            vr: &mut vr,
+            vt: &mut vt,
+            erot: &mut erot,
+            species: &species,
+            sub_offsets: &offsets,
+        };
+        collide_cell(
+            &model,
+            &mut cell,
+            fnum,
+            volume,
+            0.05 / nu,
+            &mut scm,
+            &mut rng,
+            &mut scratch,
+            &mut stats,
+        );
+    }
+    let drift = (energy(&vz, &vr, &vt) - e0).abs();
+    let e_max = 50.0 * BOLTZMANN * 600.0;
+    let bound = 2f64.powi(-23) * 2.0 * stats.collisions as f64 * e_max;
+    assert!(
+        stats.collisions as usize > n,
+        "{} collisions",
+        stats.collisions
+    );
+    assert!(
+        drift <= bound,
+        "energy drift {drift:e} J above the rounding bound {bound:e} J"
+    );
+    // and far below anything physical: a millionth of the energy
+    assert!(drift / e0 < 1e-6, "relative drift {}", drift / e0);
+}
+
 /// Viscosity of the collision kernel: in a homogeneous gas started with an anisotropic
 /// Maxwellian (T_x = 1.4 T, T_y = T_z = 0.8 T) the deviator P_xx − P_yy decays at the rate p/μ.
 /// For Maxwell molecules this is exact (Truesdell & Muncaster 1980, ch. on Maxwellian

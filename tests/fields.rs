@@ -12,8 +12,16 @@ use kinflux::simulation::Simulation;
 /// equilibrium surface and empty along directions through the hole (collisionless kinetic
 /// theory, e.g. Bird 1994 ch. 7, section from memory). With Ω the solid angle of the hole seen
 /// from the point, n = n1 (1 − Ω/4π) upstream and n = n1 Ω/4π downstream, where
-/// Ω/4π = (1 − d/sqrt(d² + a²))/2 at distance d. Checked within 3 % on axis cells with radial
-/// weighting on (the check that caught clones released one snapshot late).
+/// Ω/4π = (1 − d/sqrt(d² + a²))/2 at distance d. Checked on axis cells with radial weighting
+/// on (the check that caught clones released one snapshot late) within 3 %, or within four
+/// standard errors of the cell's sampled count where that is wider. The far downstream axis
+/// cells hold few molecules (7 500 to 25 000 samples here against 60 000 to 78 000 upstream):
+/// over seeds 1–4 their density scatters by 2–5 % both before and after velocities became f32
+/// and the molecule order changed (the same seeds gave −3.8 % and −4.6 % in the last cell),
+/// so a flat 3 % failed on sampling noise alone. A molecule crosses such a cell in under a
+/// step, so successive samples are nearly independent, but clones are delayed copies of one
+/// trajectory (weight ratio 3 here), so the effective count is taken as half the sampled one:
+/// standard error sqrt(2/N). Upstream, where N is large, the 3 % bound is the one that acts.
 #[test]
 fn free_molecular_axis_density_follows_the_hole_solid_angle() {
     let text = fm_case(
@@ -48,9 +56,11 @@ fn free_molecular_axis_density_follows_the_hole_solid_angle() {
             n1 * frac
         };
         let got = f.number_density[iz * nr];
+        let samples = f.samples[iz * nr];
+        let tolerance = (4.0 * (2.0 / samples).sqrt()).max(0.03);
         assert!(
-            (got / expected - 1.0).abs() < 0.03,
-            "z = {:.2} a: n = {got:e}, theory {expected:e}",
+            (got / expected - 1.0).abs() < tolerance,
+            "z = {:.2} a: n = {got:e}, theory {expected:e} ({samples} samples, tolerance {tolerance})",
             z / a
         );
         checked += 1;
