@@ -1,10 +1,11 @@
 //! The step loop: one simulation of one case, stage by stage.
 //!
 //! A step is a readable list of stages: move (wall hits, aperture counting, radial
-//! reweighting; in free-molecular mode each chunk's survivors are compacted to its start) →
-//! close the gaps between chunks (free-molecular mode) → inject from the reservoirs → release delayed
-//! clones → sort by cell (DSMC mode; the sort also drops the molecules that left) → collide →
-//! record the flux → sample the fields (after start-up). The move runs in parallel over fixed
+//! reweighting; in free-molecular mode each chunk's survivors are compacted to its start, in
+//! DSMC mode each molecule's sort key is written) → close the gaps between chunks
+//! (free-molecular mode) → inject from the reservoirs → release delayed clones → sort by cell
+//! (DSMC mode; the sort also drops the molecules that left) → collide → record the flux →
+//! sample the fields (after start-up). The move runs in parallel over fixed
 //! chunks of [`CHUNK`] molecules, the collisions and the sampling over fixed blocks of cells,
 //! each work unit with its own random stream keyed by (seed, step, stage, unit); results are
 //! merged in unit order, so a run is bit-identical for any number of threads. The sort is a
@@ -508,6 +509,7 @@ impl Simulation {
     /// Stage: stable counting sort of the molecules by (cell, subcell), dropping the molecules
     /// marked dead (this is the compaction of the DSMC mode). Every cell's molecules end up
     /// contiguous, ordered by subcell, and in their previous relative order inside a subcell.
+    /// The move has written the keys of the molecules it moved; only newcomers are keyed here.
     ///
     /// A stable sort has exactly one result, so the split into sort blocks (one per thread)
     /// cannot change it. The permutation is applied column by column through one reused
