@@ -1,10 +1,11 @@
 //! The step loop: one simulation of one case, stage by stage.
 //!
 //! A step is a readable list of stages: move (wall hits, aperture counting, radial
-//! reweighting; in free-molecular mode each chunk's survivors are compacted to its start) →
-//! close the gaps between chunks (free-molecular mode) → inject from the reservoirs → release delayed
-//! clones → sort by cell (DSMC mode; the sort also drops the molecules that left) → collide →
-//! record the flux → sample the fields (after start-up). The move runs in parallel over fixed
+//! reweighting; in free-molecular mode each chunk's survivors are compacted to its start, in
+//! DSMC mode each molecule's sort key is written) → close the gaps between chunks
+//! (free-molecular mode) → inject from the reservoirs → release delayed clones → sort by cell
+//! (DSMC mode; the sort also drops the molecules that left) → collide → record the flux →
+//! sample the fields (after start-up). The move runs in parallel over fixed
 //! chunks of [`CHUNK`] molecules, the collisions and the sampling over fixed blocks of cells,
 //! each work unit with its own random stream keyed by (seed, step, stage, unit); results are
 //! merged in unit order, so a run is bit-identical for any number of threads. The sort is a
@@ -447,47 +448,49 @@ impl Simulation {
         let nspecies = plan.masses.len();
         // Each inflow element is a work unit with its own stream; results are appended in
         // element order, so the outcome does not depend on the thread count.
-        let units: Vec<InflowUnit> = plan
-            .inflow
-            .par_iter()
-            .enumerate()
-            .map(|(ei, el)| {
-                let mut rng = stream(seed, step, Stage::Inject, ei as u64);
-                let mut rep = MoveReport::new(nspecies);
-                let n = el.count(&mut rng);
-                let s = el.species as usize;
-                let t_res = if el.upstream {
-                    plan.case.upstream.temperature
-                } else {
-                    plan.case.downstream.temperature
-                };
-                let mut born = Vec::with_capacity(n as usize);
-                for _ in 0..n {
-                    let mut f = el.sample(&mut rng);
-                    let mut erot =
-                        crate::maxwell::rotational_energy(plan.rot_dof[s], t_res, &mut rng);
-                    let t = plan.dt * rng.random::<f64>();
-                    // A molecule that dies on its entry flight (left or deleted by weighting)
-                    // is counted by `fly_one`, so the balance still closes.
-                    let fate = fly_one(
-                        plan,
-                        step,
-                        &mut f,
-                        &mut erot,
-                        s,
-                        t,
-                        Some(el.surface),
-                        &mut rng,
-                        &mut rep,
-                        &mut 0,
-                    );
-                    if fate == Fate::Stays {
-                        born.push((f, erot, el.species));
-                    }
+        let unit = |(ei, el): (usize, &crate::reservoir::InflowElement)| -> InflowUnit {
+            let mut rng = stream(seed, step, Stage::Inject, ei as u64);
+            let mut rep = MoveReport::new(nspecies);
+            let n = el.count(&mut rng);
+            let s = el.species as usize;
+            let t_res = if el.upstream {
+                plan.case.upstream.temperature
+            } else {
+                plan.case.downstream.temperature
+            };
+            let mut born = Vec::with_capacity(n as usize);
+            for _ in 0..n {
+                let mut f = el.sample(&mut rng);
+                let mut erot = crate::maxwell::rotational_energy(plan.rot_dof[s], t_res, &mut rng);
+                let t = plan.dt * rng.random::<f64>();
+                // A molecule that dies on its entry flight (left or deleted by weighting)
+                // is counted by `fly_one`, so the balance still closes.
+                let fate = fly_one(
+                    plan,
+                    step,
+                    &mut f,
+                    &mut erot,
+                    s,
+                    t,
+                    Some(el.surface),
+                    &mut rng,
+                    &mut rep,
+                    &mut 0,
+                );
+                if fate == Fate::Stays {
+                    born.push((f, erot, el.species));
                 }
-                (n, born, rep)
-            })
-            .collect();
+            }
+            (n, born, rep)
+        };
+        // Where few molecules enter per step (a DSMC run into vacuum: a few hundred), waking
+        // the other threads costs more than the work; the outcome is the same either way.
+        let expected: f64 = plan.inflow.iter().map(|el| el.expected_per_step).sum();
+        let units: Vec<InflowUnit> = if expected < CHUNK as f64 {
+            plan.inflow.iter().enumerate().map(unit).collect()
+        } else {
+            plan.inflow.par_iter().enumerate().map(unit).collect()
+        };
         self.molecules
             .reserve(units.iter().map(|u| u.1.len()).sum::<usize>());
         for (n, born, rep) in units {
@@ -506,6 +509,7 @@ impl Simulation {
     /// Stage: stable counting sort of the molecules by (cell, subcell), dropping the molecules
     /// marked dead (this is the compaction of the DSMC mode). Every cell's molecules end up
     /// contiguous, ordered by subcell, and in their previous relative order inside a subcell.
+    /// The move has written the keys of the molecules it moved; only newcomers are keyed here.
     ///
     /// A stable sort has exactly one result, so the split into sort blocks (one per thread)
     /// cannot change it. The permutation is applied column by column through one reused
@@ -522,20 +526,31 @@ impl Simulation {
         s.keys.resize(n, 0);
         // The move keyed the molecules it moved; the ones that joined since need keys.
         let keyed = self.keyed.min(n);
-        s.keys[keyed..]
-            .par_chunks_mut(CHUNK)
-            .zip(m.z[keyed..].par_chunks(CHUNK))
-            .zip(m.r[keyed..].par_chunks(CHUNK))
-            .zip(m.species[keyed..].par_chunks(CHUNK))
-            .for_each(|(((k, z), r), sp)| {
-                for i in 0..k.len() {
-                    k[i] = if sp[i] == DEAD {
-                        DEAD_KEY
-                    } else {
-                        grid.key(z[i], r[i]) as u32
-                    };
-                }
-            });
+        let key_of = |k: &mut [u32], z: &[f64], r: &[f64], sp: &[u8]| {
+            for i in 0..k.len() {
+                k[i] = if sp[i] == DEAD {
+                    DEAD_KEY
+                } else {
+                    grid.key(z[i], r[i]) as u32
+                };
+            }
+        };
+        // Usually a few hundred newcomers: not worth waking the other threads.
+        if n - keyed <= CHUNK {
+            key_of(
+                &mut s.keys[keyed..],
+                &m.z[keyed..],
+                &m.r[keyed..],
+                &m.species[keyed..],
+            );
+        } else {
+            s.keys[keyed..]
+                .par_chunks_mut(CHUNK)
+                .zip(m.z[keyed..].par_chunks(CHUNK))
+                .zip(m.r[keyed..].par_chunks(CHUNK))
+                .zip(m.species[keyed..].par_chunks(CHUNK))
+                .for_each(|(((k, z), r), sp)| key_of(k, z, r, sp));
+        }
         // Per-block histograms (block-major), turned into per-block write cursors.
         let blocks = rayon::current_num_threads().clamp(1, n.div_ceil(CHUNK).max(1));
         let block_len = n.div_ceil(blocks).max(1);
