@@ -2,10 +2,7 @@
 //! against collisionless kinetic theory, and fields.h5 / fields.xdmf read back by an
 //! independent reader (h5dump from the HDF5 tools).
 
-use crate::util::{fm_case, run_in, temp_dir, write};
-use kinflux::case;
-use kinflux::numerics::Plan;
-use kinflux::simulation::Simulation;
+use crate::util::{check_axis_density, fm_case, run_in, temp_dir, write};
 
 /// Collisionless flow through a thin orifice into vacuum: at a point on the axis the velocity
 /// distribution is the upstream Maxwellian along every direction whose backward ray ends on an
@@ -32,39 +29,14 @@ fn free_molecular_axis_density_follows_the_hole_solid_angle() {
         "0 mm",
         "molecules = 300000\nmax_steps = 700\n[domain]\ncell_size = 0.125\nradial_weight_ratio = 3",
     );
-    let c = case::parse(&text, "t.toml", &[]).unwrap();
-    let mut sim = Simulation::new(Plan::new(&c).unwrap());
-    while sim.step < 700 {
-        sim.step();
-    }
-    let f = sim.fields.fields(&sim.plan);
-    let g = &sim.plan.grid;
-    let a = c.aperture.radius();
-    let n1 = c.upstream.pressure / (kinflux::constants::BOLTZMANN * c.upstream.temperature);
-    let nr = g.r.len();
-    let mut checked = 0;
-    for iz in 0..g.z.len() {
-        let z = g.z.center(iz);
-        let d = z.abs();
-        if d < 0.4 * a {
-            continue; // too close to the hole for an axis-cell average
-        }
-        let frac = 0.5 * (1.0 - d / (d * d + a * a).sqrt());
-        let expected = if z < 0.0 {
-            n1 * (1.0 - frac)
-        } else {
-            n1 * frac
-        };
-        let got = f.number_density[iz * nr];
-        let samples = f.samples[iz * nr];
-        let tolerance = (4.0 * (2.0 / samples).sqrt()).max(0.03);
-        assert!(
-            (got / expected - 1.0).abs() < tolerance,
-            "z = {:.2} a: n = {got:e}, theory {expected:e} ({samples} samples, tolerance {tolerance})",
-            z / a
-        );
-        checked += 1;
-    }
+    let a = 0.1e-3;
+    let checked = check_axis_density(
+        &text,
+        700,
+        |d| 0.5 * (1.0 - d / (d * d + a * a).sqrt()),
+        0.03,
+        2.0,
+    );
     assert!(checked >= 8);
 }
 
