@@ -151,7 +151,12 @@ pub fn merge(dirs: &[PathBuf], out: &Path, force: bool) -> Result<Merged> {
         steps += s.step;
         molecules += s.population();
     }
-    let wall: f64 = members.iter().map(|m| m.wall_time_s).sum();
+    // every replica's whole wall time (its checkpoint's total, or its summary's for older runs)
+    let wall: f64 = members
+        .iter()
+        .map(|m| m.sim.wall_time_s.max(m.wall_time_s))
+        .sum();
+    members[0].sim.wall_time_s = wall;
     let total = &members[0].sim;
     let parts: Vec<_> = histories.iter().map(|(f, s)| (f, *s)).collect();
     let outcome = RunOutcome {

@@ -145,6 +145,9 @@ pub struct SavedState {
     pub sampled_upstream_molecules: u64,
     pub flux: FluxHistory,
     pub pending: Vec<PendingClone>,
+    /// Wall time of every invocation so far, s (0 in checkpoints written before it was kept).
+    #[serde(default)]
+    pub wall_time_s: f64,
     #[serde(skip)]
     pub molecules: Molecules,
     #[serde(skip)]
@@ -164,6 +167,8 @@ pub struct Simulation {
     pub balance: Balance,
     /// Sum over steps of the molecules moved (particle-steps).
     pub particle_steps: u64,
+    /// Wall time spent in `run` since the start, over every invocation (resumes add up), s.
+    pub wall_time_s: f64,
     /// (σ c_r)_max per cell and species pair (cell · S² + p · S + q).
     pub sigma_cr_max: Vec<f64>,
     /// Collision counters since the end of start-up.
@@ -219,6 +224,7 @@ impl Simulation {
             flux: FluxHistory::new(species),
             balance,
             particle_steps: 0,
+            wall_time_s: 0.0,
             sigma_cr_max,
             collision_stats: CollisionStats::default(),
             sampled_cell_molecules: 0,
@@ -246,6 +252,7 @@ impl Simulation {
             sampled_upstream_molecules: self.sampled_upstream_molecules,
             flux: self.flux.clone(),
             pending: self.pending.clone(),
+            wall_time_s: self.wall_time_s,
             molecules: self.molecules.clone(),
             sigma_cr_max: self.sigma_cr_max.clone(),
             fields: self.fields.clone(),
@@ -265,6 +272,7 @@ impl Simulation {
         sim.sampled_upstream_molecules = s.sampled_upstream_molecules;
         sim.flux = s.flux;
         sim.pending = s.pending;
+        sim.wall_time_s = s.wall_time_s;
         sim.molecules = s.molecules;
         sim.sigma_cr_max = s.sigma_cr_max;
         sim.fields = s.fields;
@@ -803,9 +811,11 @@ impl Simulation {
         let mut last_report = Instant::now();
         let check_every = 16;
         let mut last_checkpoint = Instant::now();
+        let wall_before = self.wall_time_s;
         let stop = loop {
             self.step();
             let elapsed = started.elapsed();
+            self.wall_time_s = wall_before + elapsed.as_secs_f64();
             let sampling = self.step.saturating_sub(self.plan.startup_steps);
             let mut estimate = None;
             // The stopping test runs on fixed steps only, so where a run stops does not depend
@@ -845,10 +855,9 @@ impl Simulation {
                 break StopReason::MaxWallTime;
             }
         };
-        RunOutcome {
-            stop,
-            wall_time: started.elapsed(),
-        }
+        let wall_time = started.elapsed();
+        self.wall_time_s = wall_before + wall_time.as_secs_f64();
+        RunOutcome { stop, wall_time }
     }
 }
 

@@ -94,8 +94,13 @@ pub struct RunSummary {
     /// point (White 1997), whichever is later.
     pub steady_state_step: u64,
     pub sampling_steps: u64,
+    /// Wall time of this invocation, s.
     pub wall_time_s: f64,
+    /// Wall time of every invocation of the run (a resumed run adds its earlier ones), s; for
+    /// merged replicas, the sum over the replicas.
+    pub total_wall_time_s: f64,
     pub particle_steps: u64,
+    /// Particle-steps over the total wall time (every invocation, all threads).
     pub particle_steps_per_s: f64,
     pub threads: usize,
     pub stop_reason: StopReason,
@@ -355,6 +360,13 @@ impl Summary {
             f64::NAN
         };
         let wall = outcome.wall_time.as_secs_f64();
+        // a resumed run's earlier invocations count (the simulation keeps their sum; a merge
+        // sets it to the sum over the replicas)
+        let total_wall = if sim.wall_time_s > 0.0 {
+            sim.wall_time_s
+        } else {
+            wall
+        };
         let quality = quality_report(sim, sampled as u64);
         let (aperture, plume) = profiles(sim, mdot);
         let beam = beam_summary(sim, &species);
@@ -413,9 +425,10 @@ impl Summary {
                 steady_state_step: start as u64,
                 sampling_steps: sampled as u64,
                 wall_time_s: wall,
+                total_wall_time_s: total_wall,
                 particle_steps: sim.particle_steps,
-                particle_steps_per_s: if wall > 0.0 {
-                    sim.particle_steps as f64 / wall
+                particle_steps_per_s: if total_wall > 0.0 {
+                    sim.particle_steps as f64 / total_wall
                 } else {
                     0.0
                 },

@@ -101,6 +101,7 @@ fn sigterm_then_resume_matches_an_uninterrupted_run() {
         "interrupted at step {stopped_at}"
     );
     assert_eq!(cut["run"]["stop_reason"], "interrupted");
+    let first_wall = cut["run"]["total_wall_time_s"].as_f64().unwrap();
     let again = run_in(
         dir.path(),
         &["run", "case.toml", "--resume", "cut", "--quiet"],
@@ -120,6 +121,15 @@ fn sigterm_then_resume_matches_an_uninterrupted_run() {
     assert_eq!(
         a["flow"]["mass_flow_rate_ci95_kg_s"],
         b["flow"]["mass_flow_rate_ci95_kg_s"]
+    );
+    // the resumed run's speed counts the wall time of both invocations
+    let (wall, total) = (
+        b["run"]["wall_time_s"].as_f64().unwrap(),
+        b["run"]["total_wall_time_s"].as_f64().unwrap(),
+    );
+    assert!(
+        (total - (first_wall + wall)).abs() < 1e-9 * total,
+        "{total} vs {first_wall} + {wall}"
     );
 }
 
