@@ -167,18 +167,35 @@ fn disk_view_factor_slope(s: f64) -> f64 {
 /// 1600-element cap (l ≥ 160).
 pub fn clausing_factor(l_over_r: f64) -> f64 {
     let l = l_over_r;
-    if l.is_nan() || l < 0.0 {
-        return f64::NAN;
-    }
-    if l == 0.0 {
-        return 1.0;
+    if let Some(w) = channel_limits(l) {
+        return w;
     }
     if l > CLAUSING_NUMERIC_MAX_L {
         return berman_clausing(l);
     }
+    richardson(l, |n| clausing_collocation(l, n).transmission)
+}
+
+/// A channel's transmission probability at the ends of its range: NaN for a negative or NaN
+/// length, 1 for no length, 0 for an infinite one; `None` in between.
+fn channel_limits(l: f64) -> Option<f64> {
+    if l.is_nan() || l < 0.0 {
+        Some(f64::NAN)
+    } else if l == 0.0 {
+        Some(1.0)
+    } else if l.is_infinite() {
+        Some(0.0)
+    } else {
+        None
+    }
+}
+
+/// Richardson extrapolation of a collocation result over [`clausing_elements`] and half as many
+/// elements (midpoint collocation: error ∝ 1/N²), clamped to a probability.
+fn richardson(l: f64, transmission: impl Fn(usize) -> f64) -> f64 {
     let n_fine = clausing_elements(l);
-    let fine = clausing_collocation(l, n_fine).transmission;
-    let coarse = clausing_collocation(l, n_fine / 2).transmission;
+    let fine = transmission(n_fine);
+    let coarse = transmission(n_fine / 2);
     ((4.0 * fine - coarse) / 3.0).clamp(0.0, 1.0)
 }
 
@@ -372,14 +389,8 @@ fn solve_dense(a: &mut [f64], b: &mut [f64], n: usize) {
 /// is needed: L = 0 gives 1, L = ∞ gives 0, negative or NaN gives NaN.
 pub fn berman_clausing(l_over_r: f64) -> f64 {
     let l = l_over_r;
-    if l.is_nan() || l < 0.0 {
-        return f64::NAN;
-    }
-    if l == 0.0 {
-        return 1.0;
-    }
-    if l.is_infinite() {
-        return 0.0;
+    if let Some(w) = channel_limits(l) {
+        return w;
     }
     let s = (l * l + 4.0).sqrt();
     let first = 0.5 * (1.0 + disk_view_factor(l));
@@ -474,22 +485,13 @@ fn slit_kernel_integral(u: f64) -> f64 {
 /// 0.1 s at the 1600-element cap (l ≥ 160).
 pub fn slit_transmission(l_over_h: f64) -> f64 {
     let l = l_over_h;
-    if l.is_nan() || l < 0.0 {
-        return f64::NAN;
-    }
-    if l == 0.0 {
-        return 1.0;
-    }
-    if l.is_infinite() {
-        return 0.0;
+    if let Some(w) = channel_limits(l) {
+        return w;
     }
     if l > CLAUSING_NUMERIC_MAX_L {
         return f64::NAN;
     }
-    let n_fine = clausing_elements(l);
-    let fine = slit_collocation(l, n_fine).transmission;
-    let coarse = slit_collocation(l, n_fine / 2).transmission;
-    ((4.0 * fine - coarse) / 3.0).clamp(0.0, 1.0)
+    richardson(l, |n| slit_collocation(l, n).transmission)
 }
 
 /// Midpoint collocation of the slit-channel equation with `n` (even) uniform elements.
