@@ -18,6 +18,7 @@ pub mod case;
 pub mod checkpoint;
 pub mod collide;
 pub mod constants;
+pub mod crew;
 pub mod ensemble;
 pub mod error;
 pub mod field_output;

@@ -15,9 +15,9 @@
 //! sampling; a cell never sampled reports NaN fields, not zeros.
 
 use crate::constants::BOLTZMANN;
+use crate::crew::Crew;
 use crate::numerics::Plan;
 use crate::particles::Molecules;
-use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 /// Number of per-cell accumulators besides the species counts.
@@ -63,6 +63,7 @@ impl FieldSampler {
     /// own cells' molecules in array order, so the sums do not depend on the thread count.
     pub fn sample_sorted(
         &mut self,
+        crew: &Crew,
         plan: &Plan,
         m: &Molecules,
         offsets: &[u32],
@@ -70,22 +71,23 @@ impl FieldSampler {
         block: usize,
     ) {
         let ns = self.species;
-        self.counts
-            .par_chunks_mut(block * ns)
-            .zip(self.moments.par_chunks_mut(block * MOMENTS))
-            .enumerate()
-            .for_each(|(b, (counts, moments))| {
-                for k in 0..counts.len() / ns {
-                    let c = b * block + k;
-                    let lo = offsets[c * subcells] as usize;
-                    let hi = offsets[(c + 1) * subcells] as usize;
-                    let a = &mut moments[k * MOMENTS..(k + 1) * MOMENTS];
-                    let n = &mut counts[k * ns..(k + 1) * ns];
-                    for i in lo..hi {
-                        add(plan, m, i, n, a);
-                    }
+        let items: Vec<_> = self
+            .counts
+            .chunks_mut(block * ns)
+            .zip(self.moments.chunks_mut(block * MOMENTS))
+            .collect();
+        crew.for_each(items, |b, (counts, moments)| {
+            for k in 0..counts.len() / ns {
+                let c = b * block + k;
+                let lo = offsets[c * subcells] as usize;
+                let hi = offsets[(c + 1) * subcells] as usize;
+                let a = &mut moments[k * MOMENTS..(k + 1) * MOMENTS];
+                let n = &mut counts[k * ns..(k + 1) * ns];
+                for i in lo..hi {
+                    add(plan, m, i, n, a);
                 }
-            });
+            }
+        });
         self.steps += 1;
     }
 
@@ -95,6 +97,7 @@ impl FieldSampler {
     /// do not depend on the thread count.
     pub fn sample(
         &mut self,
+        crew: &Crew,
         plan: &Plan,
         m: &Molecules,
         cell_of: impl Fn(usize) -> usize + Sync,
@@ -106,22 +109,20 @@ impl FieldSampler {
         let blocks = m.len().div_ceil(block);
         partial.clear();
         partial.resize(blocks * width, 0.0);
-        partial
-            .par_chunks_mut(width.max(1))
-            .enumerate()
-            .for_each(|(b, acc)| {
-                let (counts, moments) = acc.split_at_mut(self.cells * ns);
-                for i in b * block..((b + 1) * block).min(m.len()) {
-                    let c = cell_of(i);
-                    add(
-                        plan,
-                        m,
-                        i,
-                        &mut counts[c * ns..(c + 1) * ns],
-                        &mut moments[c * MOMENTS..(c + 1) * MOMENTS],
-                    );
-                }
-            });
+        let items: Vec<_> = partial.chunks_mut(width.max(1)).collect();
+        crew.for_each(items, |b, acc| {
+            let (counts, moments) = acc.split_at_mut(self.cells * ns);
+            for i in b * block..((b + 1) * block).min(m.len()) {
+                let c = cell_of(i);
+                add(
+                    plan,
+                    m,
+                    i,
+                    &mut counts[c * ns..(c + 1) * ns],
+                    &mut moments[c * MOMENTS..(c + 1) * MOMENTS],
+                );
+            }
+        });
         for acc in partial.chunks(width.max(1)) {
             let (counts, moments) = acc.split_at(self.cells * ns);
             for (a, b) in self.counts.iter_mut().zip(counts) {

@@ -16,6 +16,7 @@
 //! `initial + injected + released − left − deleted = population` holds exactly.
 
 use crate::collide::{collide_cell, CellMolecules, CollisionStats, Scratch};
+use crate::crew::Crew;
 use crate::flux::{Crossings, FluxHistory};
 use crate::geometry::SurfaceRole;
 use crate::monitor::{batch_means, BatchEstimate, StopReason};
@@ -99,10 +100,12 @@ type InflowUnit = (u64, Vec<(Flight, f64, u8)>, MoveReport);
 /// Buffers of the sort, reused from step to step (never part of the saved state).
 #[derive(Default)]
 struct SortScratch {
-    /// Sort key of each molecule, then its destination.
+    /// Sort key of each molecule (`DEAD_KEY` for the molecules to drop).
     keys: Vec<u32>,
     /// Per-block key counts, then per-block write cursors (block-major).
     counts: Vec<u32>,
+    /// The sorted order: source index of the molecule at each position.
+    perm: Vec<u32>,
     /// The one spare column per element type that a column is reordered into.
     f64_column: Vec<f64>,
     stored_column: Vec<Stored>,
@@ -194,6 +197,9 @@ pub struct Simulation {
     kept: Vec<usize>,
     /// Leading molecules whose sort keys the move has written (DSMC mode).
     keyed: usize,
+    /// The threads that run the parallel stages (as many as the rayon pool the simulation
+    /// was built in).
+    crew: Crew,
 }
 
 impl Simulation {
@@ -238,6 +244,7 @@ impl Simulation {
             sample_partial: Vec::new(),
             kept: Vec::new(),
             keyed: 0,
+            crew: Crew::new(rayon::current_num_threads()),
         }
     }
 
@@ -309,12 +316,13 @@ impl Simulation {
         if self.sampling() {
             let (plan, m, f) = (&self.plan, &self.molecules, &mut self.fields);
             let (offsets, partial) = (&self.cell_offsets, &mut self.sample_partial);
+            let crew = &self.crew;
             timed(&mut t.sample_s, || {
                 if plan.collisions.is_some() {
-                    f.sample_sorted(plan, m, offsets, plan.grid.subcells(), CELL_BLOCK)
+                    f.sample_sorted(crew, plan, m, offsets, plan.grid.subcells(), CELL_BLOCK)
                 } else {
                     let cell_of = |i: usize| plan.grid.cell(m.z[i], m.r[i]);
-                    f.sample(plan, m, cell_of, SAMPLE_BLOCK, partial)
+                    f.sample(crew, plan, m, cell_of, SAMPLE_BLOCK, partial)
                 }
             });
         }
@@ -373,18 +381,19 @@ impl Simulation {
         make_room(keys, grow);
         keys.resize(m.len(), 0);
         self.keyed = m.len();
-        let reports: Vec<MoveReport> = m
-            .z
-            .par_chunks_mut(CHUNK)
-            .zip(m.r.par_chunks_mut(CHUNK))
-            .zip(m.vz.par_chunks_mut(CHUNK))
-            .zip(m.vr.par_chunks_mut(CHUNK))
-            .zip(m.vt.par_chunks_mut(CHUNK))
-            .zip(m.erot.par_chunks_mut(CHUNK))
-            .zip(m.species.par_chunks_mut(CHUNK))
-            .zip(keys.par_chunks_mut(CHUNK))
-            .enumerate()
-            .map(|(ci, (((((((z, r), vz), vr), vt), erot), sp), key))| {
+        let chunks: Vec<_> =
+            m.z.chunks_mut(CHUNK)
+                .zip(m.r.chunks_mut(CHUNK))
+                .zip(m.vz.chunks_mut(CHUNK))
+                .zip(m.vr.chunks_mut(CHUNK))
+                .zip(m.vt.chunks_mut(CHUNK))
+                .zip(m.erot.chunks_mut(CHUNK))
+                .zip(m.species.chunks_mut(CHUNK))
+                .zip(keys.chunks_mut(CHUNK))
+                .collect();
+        let reports: Vec<MoveReport> = self.crew.map(
+            chunks,
+            |ci, (((((((z, r), vz), vr), vt), erot), sp), key)| {
                 let mut rng = stream(seed, step, Stage::Move, ci as u64);
                 let mut rep = MoveReport::new(nspecies);
                 // Survivors are written to `w` ≤ i: compacted inside the chunk while
@@ -433,8 +442,8 @@ impl Simulation {
                 }
                 rep.kept = w;
                 rep
-            })
-            .collect();
+            },
+        );
         let mut total = Crossings::new(nspecies);
         self.kept.clear();
         for rep in reports {
@@ -520,15 +529,17 @@ impl Simulation {
     /// The move has written the keys of the molecules it moved; only newcomers are keyed here.
     ///
     /// A stable sort has exactly one result, so the split into sort blocks (one per thread)
-    /// cannot change it. The permutation is applied column by column through one reused
-    /// scratch column per element type instead of a second copy of every array: that is what
-    /// keeps the resident memory near the arrays' own footprint.
+    /// cannot change it. The permutation is applied column by column, each a gather into one
+    /// reused scratch column per element type instead of a second copy of every array (that
+    /// keeps the resident memory near the arrays' own footprint); a gather writes its output
+    /// in contiguous blocks, so no two threads write the same cache line.
     fn sort_by_cell(&mut self) {
         let grid = &self.plan.grid;
         let nkeys = grid.cells() * grid.subcells();
         let m = &mut self.molecules;
         let n = m.len();
         let s = &mut self.sort;
+        let crew = &self.crew;
         let grow = n.saturating_sub(s.keys.len());
         make_room(&mut s.keys, grow);
         s.keys.resize(n, 0);
@@ -552,34 +563,43 @@ impl Simulation {
                 &m.species[keyed..],
             );
         } else {
-            s.keys[keyed..]
-                .par_chunks_mut(CHUNK)
-                .zip(m.z[keyed..].par_chunks(CHUNK))
-                .zip(m.r[keyed..].par_chunks(CHUNK))
-                .zip(m.species[keyed..].par_chunks(CHUNK))
-                .for_each(|(((k, z), r), sp)| key_of(k, z, r, sp));
+            let items: Vec<_> = s.keys[keyed..]
+                .chunks_mut(CHUNK)
+                .zip(m.z[keyed..].chunks(CHUNK))
+                .zip(m.r[keyed..].chunks(CHUNK))
+                .zip(m.species[keyed..].chunks(CHUNK))
+                .collect();
+            crew.for_each(items, |_, (((k, z), r), sp)| key_of(k, z, r, sp));
         }
-        // Per-block histograms (block-major), turned into per-block write cursors.
-        let blocks = rayon::current_num_threads().clamp(1, n.div_ceil(CHUNK).max(1));
-        let block_len = n.div_ceil(blocks).max(1);
+        // One source block per thread: per-block key counts, turned into per-block write
+        // cursors, then each block writes the source index of each of its molecules at its
+        // cursor (the permutation: sorted position → molecule). The molecules come sorted from
+        // the last step and move less than a cell per step, so block t's molecules land in
+        // about the t-th part of the permutation: the threads' writes meet only near the
+        // block boundary, and the crew gives thread t the same part in every stage.
+        let parts = crew.threads().clamp(1, n.div_ceil(CHUNK).max(1));
+        let block_len = n.div_ceil(parts).max(1);
         s.counts.clear();
-        s.counts.resize(blocks * nkeys, 0);
-        s.counts
-            .par_chunks_mut(nkeys)
-            .zip(s.keys.par_chunks(block_len))
-            .for_each(|(c, k)| {
-                for &k in k {
-                    if k != DEAD_KEY {
-                        c[k as usize] += 1;
-                    }
+        s.counts.resize(parts * nkeys, 0);
+        let keys = &s.keys;
+        let items: Vec<_> = s
+            .counts
+            .chunks_mut(nkeys)
+            .zip(keys.chunks(block_len))
+            .collect();
+        crew.for_each(items, |_, (c, k)| {
+            for &k in k {
+                if k != DEAD_KEY {
+                    c[k as usize] += 1;
                 }
-            });
+            }
+        });
         self.cell_offsets.clear();
         self.cell_offsets.reserve(nkeys + 1);
         let mut pos = 0u32;
         for k in 0..nkeys {
             self.cell_offsets.push(pos);
-            for b in 0..blocks {
+            for b in 0..parts {
                 let c = &mut s.counts[b * nkeys + k];
                 let count = *c;
                 *c = pos;
@@ -588,27 +608,34 @@ impl Simulation {
         }
         self.cell_offsets.push(pos);
         let alive = pos as usize;
-        // Each molecule's key becomes its destination (DEAD_KEY stays: not placed).
-        s.counts
-            .par_chunks_mut(nkeys)
-            .zip(s.keys.par_chunks_mut(block_len))
-            .for_each(|(cursor, k)| {
-                for k in k.iter_mut() {
-                    if *k != DEAD_KEY {
-                        let c = &mut cursor[*k as usize];
-                        *k = *c;
-                        *c += 1;
-                    }
+        s.perm.clear();
+        make_room(&mut s.perm, alive);
+        let out = SharedWrites(s.perm.as_mut_ptr(), alive);
+        let items: Vec<_> = s
+            .counts
+            .chunks_mut(nkeys)
+            .zip(keys.chunks(block_len))
+            .collect();
+        crew.for_each(items, |b, (cursor, k)| {
+            for (i, &k) in (b * block_len..).zip(k) {
+                if k != DEAD_KEY {
+                    let c = &mut cursor[k as usize];
+                    out.write(*c as usize, i as u32);
+                    *c += 1;
                 }
-            });
-        let dest = &s.keys;
-        scatter(&mut m.z, &mut s.f64_column, dest, alive);
-        scatter(&mut m.r, &mut s.f64_column, dest, alive);
-        scatter(&mut m.vz, &mut s.stored_column, dest, alive);
-        scatter(&mut m.vr, &mut s.stored_column, dest, alive);
-        scatter(&mut m.vt, &mut s.stored_column, dest, alive);
-        scatter(&mut m.erot, &mut s.stored_column, dest, alive);
-        scatter(&mut m.species, &mut s.u8_column, dest, alive);
+            }
+        });
+        // SAFETY: the cursors enumerate exactly the positions 0..alive, one per live molecule,
+        // so the loop above wrote each of them once (within the capacity: make_room).
+        unsafe { s.perm.set_len(alive) };
+        let perm = &s.perm;
+        gather(crew, &mut m.z, &mut s.f64_column, perm);
+        gather(crew, &mut m.r, &mut s.f64_column, perm);
+        gather(crew, &mut m.vz, &mut s.stored_column, perm);
+        gather(crew, &mut m.vr, &mut s.stored_column, perm);
+        gather(crew, &mut m.vt, &mut s.stored_column, perm);
+        gather(crew, &mut m.erot, &mut s.stored_column, perm);
+        gather(crew, &mut m.species, &mut s.u8_column, perm);
     }
 
     /// Stage: NTC collisions in every cell, in parallel over fixed blocks of cells.
@@ -682,67 +709,64 @@ impl Simulation {
         }
         let fnum = plan.fnum;
         let dt = plan.dt;
-        let stats: Vec<CollisionStats> = blocks
-            .into_par_iter()
-            .map(|b| {
-                let mut rng = stream(
-                    seed,
-                    step,
-                    Stage::Collide,
-                    (b.first_cell / CELL_BLOCK) as u64,
-                );
-                let mut scratch = Scratch::default();
-                let mut st = CollisionStats::default();
-                let base = offsets[b.first_cell * ss] as usize;
-                let Block {
-                    z,
-                    r,
-                    vz,
-                    vr,
-                    vt,
-                    erot,
-                    species,
-                    scm,
-                    first_cell,
-                } = b;
-                let ncells = scm.len() / (ns * ns);
-                let mut sub_offsets = vec![0u32; ss + 1];
-                for k in 0..ncells {
-                    let c = first_cell + k;
-                    let lo = offsets[c * ss] as usize - base;
-                    let hi = offsets[(c + 1) * ss] as usize - base;
-                    if hi - lo < 2 {
-                        continue;
-                    }
-                    for (s, o) in sub_offsets.iter_mut().enumerate() {
-                        *o = offsets[c * ss + s] - offsets[c * ss];
-                    }
-                    let mut cell = CellMolecules {
-                        z: &z[lo..hi],
-                        r: &r[lo..hi],
-                        vz: &mut vz[lo..hi],
-                        vr: &mut vr[lo..hi],
-                        vt: &mut vt[lo..hi],
-                        erot: &mut erot[lo..hi],
-                        species: &species[lo..hi],
-                        sub_offsets: &sub_offsets,
-                    };
-                    let w = plan.weights.factor[c % rows];
-                    collide_cell(
-                        model,
-                        &mut cell,
-                        fnum * w,
-                        plan.grid.volume[c],
-                        dt,
-                        &mut scm[k * ns * ns..(k + 1) * ns * ns],
-                        &mut rng,
-                        &mut scratch,
-                        &mut st,
-                    );
+        let stats: Vec<CollisionStats> = self.crew.map(blocks, |_, b| {
+            let mut rng = stream(
+                seed,
+                step,
+                Stage::Collide,
+                (b.first_cell / CELL_BLOCK) as u64,
+            );
+            let mut scratch = Scratch::default();
+            let mut st = CollisionStats::default();
+            let base = offsets[b.first_cell * ss] as usize;
+            let Block {
+                z,
+                r,
+                vz,
+                vr,
+                vt,
+                erot,
+                species,
+                scm,
+                first_cell,
+            } = b;
+            let ncells = scm.len() / (ns * ns);
+            let mut sub_offsets = vec![0u32; ss + 1];
+            for k in 0..ncells {
+                let c = first_cell + k;
+                let lo = offsets[c * ss] as usize - base;
+                let hi = offsets[(c + 1) * ss] as usize - base;
+                if hi - lo < 2 {
+                    continue;
                 }
-                st
-            })
-            .collect();
+                for (s, o) in sub_offsets.iter_mut().enumerate() {
+                    *o = offsets[c * ss + s] - offsets[c * ss];
+                }
+                let mut cell = CellMolecules {
+                    z: &z[lo..hi],
+                    r: &r[lo..hi],
+                    vz: &mut vz[lo..hi],
+                    vr: &mut vr[lo..hi],
+                    vt: &mut vt[lo..hi],
+                    erot: &mut erot[lo..hi],
+                    species: &species[lo..hi],
+                    sub_offsets: &sub_offsets,
+                };
+                let w = plan.weights.factor[c % rows];
+                collide_cell(
+                    model,
+                    &mut cell,
+                    fnum * w,
+                    plan.grid.volume[c],
+                    dt,
+                    &mut scm[k * ns * ns..(k + 1) * ns * ns],
+                    &mut rng,
+                    &mut scratch,
+                    &mut st,
+                );
+            }
+            st
+        });
         if self.sampling() {
             for s in &stats {
                 self.collision_stats.merge(s);
@@ -770,6 +794,7 @@ impl Simulation {
             + bytes(&m.erot)
             + bytes(&m.species)
             + bytes(&s.keys)
+            + bytes(&s.perm)
             + bytes(&s.f64_column)
             + bytes(&s.stored_column)
             + bytes(&s.u8_column)
@@ -864,46 +889,16 @@ impl Simulation {
 /// Sort key of a molecule marked dead: it is not placed, so the sort also compacts.
 const DEAD_KEY: u32 = u32::MAX;
 
-/// Reorder one column: molecule i goes to position `dest[i]` (skipped when `DEAD_KEY`); `dest`
-/// maps the live molecules one-to-one onto 0..alive. The result is built in `spare` and the
-/// two vectors are swapped, so the old column becomes the next column's scratch.
-fn scatter<T: Copy + Send + Sync>(
-    column: &mut Vec<T>,
-    spare: &mut Vec<T>,
-    dest: &[u32],
-    alive: usize,
-) {
-    spare.clear();
-    make_room(spare, alive);
-    let out = Scatter(spare.as_mut_ptr(), alive);
-    column
-        .par_chunks(CHUNK)
-        .zip(dest.par_chunks(CHUNK))
-        .for_each(|(col, d)| {
-            for (&v, &d) in col.iter().zip(d) {
-                if d != DEAD_KEY {
-                    out.write(d as usize, v);
-                }
-            }
-        });
-    // SAFETY: capacity ≥ alive (make_room), and the loop above wrote every position of
-    // 0..alive exactly once, because `dest` maps the live molecules one-to-one onto it (the
-    // cursors of the counting sort enumerate exactly the positions 0..alive). Skipping the
-    // zero fill saves a pass over every column.
-    unsafe { spare.set_len(alive) };
-    std::mem::swap(column, spare);
-}
+/// Write access to the capacity of one vector, shared by the workers of the sort's placement.
+struct SharedWrites<T>(*mut T, usize);
 
-/// Write access to the capacity of one vector, shared by the workers of a scatter.
-struct Scatter<T>(*mut T, usize);
+// SAFETY: the workers write through the pointer only at the positions handed out by the
+// counting sort's cursors, a one-to-one map, so no two of them ever touch the same element,
+// and nothing reads the vector until the job has finished.
+unsafe impl<T: Send> Send for SharedWrites<T> {}
+unsafe impl<T: Send> Sync for SharedWrites<T> {}
 
-// SAFETY: the workers write through the pointer only at the positions of a one-to-one map
-// (`scatter`'s `dest`), so no two of them ever touch the same element, and nothing reads the
-// vector until the parallel loop has joined.
-unsafe impl<T: Send> Send for Scatter<T> {}
-unsafe impl<T: Send> Sync for Scatter<T> {}
-
-impl<T> Scatter<T> {
+impl<T> SharedWrites<T> {
     #[inline]
     fn write(&self, i: usize, v: T) {
         assert!(i < self.1, "destination out of range");
@@ -911,6 +906,37 @@ impl<T> Scatter<T> {
         // worker (see the impls).
         unsafe { self.0.add(i).write(v) }
     }
+}
+
+/// Destinations per work unit of a gather (fixed, large: a gather is a plain copy).
+const GATHER_BLOCK: usize = CHUNK;
+
+/// Reorder one column: position d receives molecule `perm[d]`. The result is built in
+/// `spare` (its old contents are not read) and the two vectors are swapped, so the old column
+/// becomes the next column's scratch. Each worker writes a contiguous range.
+fn gather<T: Copy + Send + Sync>(
+    crew: &Crew,
+    column: &mut Vec<T>,
+    spare: &mut Vec<T>,
+    perm: &[u32],
+) {
+    let n = perm.len();
+    spare.clear();
+    make_room(spare, n);
+    let src = &column[..];
+    let items: Vec<_> = spare.spare_capacity_mut()[..n]
+        .chunks_mut(GATHER_BLOCK)
+        .zip(perm.chunks(GATHER_BLOCK))
+        .collect();
+    crew.for_each(items, |_, (out, p)| {
+        for (o, &i) in out.iter_mut().zip(p) {
+            o.write(src[i as usize]);
+        }
+    });
+    // SAFETY: every one of the first n elements was written just above (the zip covers
+    // 0..n, as `out` and `perm` have the same length n and the same block split).
+    unsafe { spare.set_len(n) };
+    std::mem::swap(column, spare);
 }
 
 /// How a run ended.
