@@ -48,8 +48,22 @@ struct Job<'a> {
 }
 
 impl Job<'_> {
-    fn new(n: usize, threads: usize, f: &(dyn Fn(usize) + Sync)) -> Job<'_> {
-        let bound = |t: usize| n * t / threads;
+    fn new<'a>(
+        n: usize,
+        threads: usize,
+        first: &dyn Fn(usize) -> usize,
+        f: &'a (dyn Fn(usize) + Sync),
+    ) -> Job<'a> {
+        // Monotone and within 0..=n whatever `first` returns.
+        let mut last = 0;
+        let mut starts: Vec<usize> = (0..threads)
+            .map(|t| {
+                last = if t == 0 { 0 } else { first(t).clamp(last, n) };
+                last
+            })
+            .collect();
+        starts.push(n);
+        let bound = |t: usize| starts[t];
         Job {
             next: (0..threads).map(|t| AtomicUsize::new(bound(t))).collect(),
             ends: (1..=threads).map(bound).collect(),
@@ -128,6 +142,14 @@ impl Crew {
 
     /// Run `f(i)` for every i in 0..n, spread over the crew; returns when all are done.
     pub fn run(&self, n: usize, f: &(dyn Fn(usize) + Sync)) {
+        let threads = self.threads();
+        self.run_split(n, &|t| n * t / threads, f);
+    }
+
+    /// [`Crew::run`] with thread t starting on units `first(t)..first(t + 1)` (t ≥ 1; thread 0
+    /// starts at 0): for units of uneven cost, so that each thread's share is about the same
+    /// part of the molecule arrays as in the other stages.
+    pub fn run_split(&self, n: usize, first: &dyn Fn(usize) -> usize, f: &(dyn Fn(usize) + Sync)) {
         if self.workers.is_empty() || n <= 1 {
             (0..n).for_each(f);
             return;
@@ -137,7 +159,7 @@ impl Crew {
             !inner.in_job.swap(true, Ordering::Acquire),
             "crew jobs must not nest"
         );
-        let job = Job::new(n, self.threads(), f);
+        let job = Job::new(n, self.threads(), first, f);
         let generation = (inner.state.load(Ordering::Relaxed) >> 32).wrapping_add(1) & 0xFFFF_FFFF;
         // SAFETY: the previous job is closed with no registered worker (we waited for that
         // before returning from the last `run`), so nobody reads the slot now. The pointer is
@@ -176,6 +198,17 @@ impl Crew {
 
     /// Apply `f(i, item)` to every item, spread over the crew; results in item order.
     pub fn map<T: Send, R: Send>(&self, items: Vec<T>, f: impl Fn(usize, T) -> R + Sync) -> Vec<R> {
+        let (n, threads) = (items.len(), self.threads());
+        self.map_split(items, |t| n * t / threads, f)
+    }
+
+    /// [`Crew::map`] with thread t starting on items `first(t)..` (see [`Crew::run_split`]).
+    pub fn map_split<T: Send, R: Send>(
+        &self,
+        items: Vec<T>,
+        first: impl Fn(usize) -> usize,
+        f: impl Fn(usize, T) -> R + Sync,
+    ) -> Vec<R> {
         let n = items.len();
         if self.workers.is_empty() || n <= 1 {
             return items
@@ -186,7 +219,7 @@ impl Crew {
         }
         let slots: Vec<Mutex<Option<T>>> = items.into_iter().map(|t| Mutex::new(Some(t))).collect();
         let out: Vec<Mutex<Option<R>>> = (0..n).map(|_| Mutex::new(None)).collect();
-        self.run(n, &|i| {
+        self.run_split(n, &first, &|i| {
             let item = slots[i]
                 .lock()
                 .unwrap_or_else(|e| e.into_inner())

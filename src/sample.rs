@@ -46,6 +46,27 @@ pub struct FieldSampler {
     pub moments: Vec<f64>,
 }
 
+/// First work block of each thread when `blocks` blocks of `keys_per_block` sort keys each
+/// are shared by `threads` threads in proportion to their molecules (`offsets`: the sort's
+/// offsets, one per key and a final total), so that thread t works on about the t-th part of
+/// the sorted arrays, as in the move and the sort.
+pub fn thread_starts(
+    offsets: &[u32],
+    keys_per_block: usize,
+    blocks: usize,
+    threads: usize,
+) -> Vec<usize> {
+    let total = offsets.last().copied().unwrap_or(0) as usize;
+    let keys = offsets.len().saturating_sub(1);
+    (0..threads)
+        .map(|t| {
+            let target = (total * t / threads) as u32;
+            let key = offsets[..keys].partition_point(|&o| o < target);
+            key.div_ceil(keys_per_block.max(1)).min(blocks)
+        })
+        .collect()
+}
+
 impl FieldSampler {
     /// Empty sampler for `cells` cells and `species` species.
     pub fn new(cells: usize, species: usize) -> Self {
@@ -76,18 +97,23 @@ impl FieldSampler {
             .chunks_mut(block * ns)
             .zip(self.moments.chunks_mut(block * MOMENTS))
             .collect();
-        crew.for_each(items, |b, (counts, moments)| {
-            for k in 0..counts.len() / ns {
-                let c = b * block + k;
-                let lo = offsets[c * subcells] as usize;
-                let hi = offsets[(c + 1) * subcells] as usize;
-                let a = &mut moments[k * MOMENTS..(k + 1) * MOMENTS];
-                let n = &mut counts[k * ns..(k + 1) * ns];
-                for i in lo..hi {
-                    add(plan, m, i, n, a);
+        let starts = thread_starts(offsets, block * subcells, items.len(), crew.threads());
+        crew.map_split(
+            items,
+            |t| starts[t],
+            |b, (counts, moments)| {
+                for k in 0..counts.len() / ns {
+                    let c = b * block + k;
+                    let lo = offsets[c * subcells] as usize;
+                    let hi = offsets[(c + 1) * subcells] as usize;
+                    let a = &mut moments[k * MOMENTS..(k + 1) * MOMENTS];
+                    let n = &mut counts[k * ns..(k + 1) * ns];
+                    for i in lo..hi {
+                        add(plan, m, i, n, a);
+                    }
                 }
-            }
-        });
+            },
+        );
         self.steps += 1;
     }
 

@@ -27,7 +27,6 @@ use crate::sample::FieldSampler;
 use crate::streams::{stream, Stage};
 use crate::weights::CLONE_DELAY_MAX;
 use rand::Rng;
-use rayon::prelude::*;
 use std::time::{Duration, Instant};
 
 /// Cells per collision and sampling work block (fixed, so results do not depend on the thread
@@ -463,12 +462,26 @@ impl Simulation {
         let step = self.step;
         let seed = plan.case.solver.seed;
         let nspecies = plan.masses.len();
-        // Each inflow element is a work unit with its own stream; results are appended in
-        // element order, so the outcome does not depend on the thread count.
-        let unit = |(ei, el): (usize, &crate::reservoir::InflowElement)| -> InflowUnit {
-            let mut rng = stream(seed, step, Stage::Inject, ei as u64);
+        // Each element draws its count from its own stream; its molecules are then split into
+        // fixed units of at most INJECT_UNIT, each with its own stream (element, unit). The
+        // split depends only on the counts, so the outcome does not depend on the thread
+        // count, and an element that injects most of the molecules (the outer cylinder of a
+        // small free-molecular domain) is shared between threads.
+        let mut units = Vec::new();
+        for (ei, el) in plan.inflow.iter().enumerate() {
+            let mut left = el.count(&mut stream(seed, step, Stage::InjectCount, ei as u64));
+            let mut k = 0u64;
+            while left > 0 {
+                let n = left.min(INJECT_UNIT);
+                units.push((ei, k, n));
+                left -= n;
+                k += 1;
+            }
+        }
+        let unit = |_, (ei, k, n): (usize, u64, u64)| -> InflowUnit {
+            let el = &plan.inflow[ei];
+            let mut rng = stream(seed, step, Stage::Inject, (ei as u64) << 32 | k);
             let mut rep = MoveReport::new(nspecies);
-            let n = el.count(&mut rng);
             let s = el.species as usize;
             let t_res = if el.upstream {
                 plan.case.upstream.temperature
@@ -500,27 +513,27 @@ impl Simulation {
             }
             (n, born, rep)
         };
-        // Where few molecules enter per step (a DSMC run into vacuum: a few hundred), waking
-        // the other threads costs more than the work; the outcome is the same either way.
-        let expected: f64 = plan.inflow.iter().map(|el| el.expected_per_step).sum();
-        let units: Vec<InflowUnit> = if expected < CHUNK as f64 {
-            plan.inflow.iter().enumerate().map(unit).collect()
+        // A DSMC run into vacuum injects a few hundred molecules per step: waking the crew for
+        // them costs more than it saves (the outcome is the same either way).
+        let total: u64 = units.iter().map(|u| u.2).sum();
+        let units: Vec<InflowUnit> = if total < INJECT_UNIT {
+            units
+                .into_iter()
+                .enumerate()
+                .map(|(i, u)| unit(i, u))
+                .collect()
         } else {
-            plan.inflow.par_iter().enumerate().map(unit).collect()
+            self.crew.map(units, unit)
         };
-        self.molecules
-            .reserve(units.iter().map(|u| u.1.len()).sum::<usize>());
-        for (n, born, rep) in units {
+        for (n, _, rep) in &units {
             self.balance.injected += n;
             self.balance.left_upstream += rep.left_up;
             self.balance.left_downstream += rep.left_down;
             self.balance.deleted_by_weighting += rep.deleted;
-            self.pending.extend(rep.clones);
+            self.pending.extend(rep.clones.iter().copied());
             crossings.merge(&rep.crossings);
-            for (f, erot, sp) in born {
-                self.molecules.push(&f, erot, sp);
-            }
         }
+        append(&self.crew, &mut self.molecules, &units);
     }
 
     /// Stage: stable counting sort of the molecules by (cell, subcell), dropping the molecules
@@ -594,19 +607,34 @@ impl Simulation {
                 }
             }
         });
-        self.cell_offsets.clear();
-        self.cell_offsets.reserve(nkeys + 1);
-        let mut pos = 0u32;
-        for k in 0..nkeys {
-            self.cell_offsets.push(pos);
-            for b in 0..parts {
-                let c = &mut s.counts[b * nkeys + k];
-                let count = *c;
-                *c = pos;
-                pos += count;
+        // Offsets: the key totals, summed block by block, then a running sum. Cursors, from
+        // the last block back: block b starts each key where block b + 1 starts less its own
+        // count, and the last block where the next key starts. (Whole-slice passes: the
+        // per-key loop over blocks was a third of the step's serial time on two threads.)
+        let off = &mut self.cell_offsets;
+        off.clear();
+        off.resize(nkeys + 1, 0);
+        for c in s.counts.chunks(nkeys) {
+            for (o, &c) in off[1..].iter_mut().zip(c) {
+                *o += c;
             }
         }
-        self.cell_offsets.push(pos);
+        let mut pos = 0u32;
+        for o in off.iter_mut() {
+            pos += *o;
+            *o = pos;
+        }
+        for b in (0..parts).rev() {
+            let (lower, upper) = s.counts.split_at_mut((b + 1) * nkeys);
+            let next = if b + 1 == parts {
+                &off[1..]
+            } else {
+                &upper[..nkeys]
+            };
+            for (c, &n) in lower[b * nkeys..].iter_mut().zip(next) {
+                *c = n - *c;
+            }
+        }
         let alive = pos as usize;
         s.perm.clear();
         make_room(&mut s.perm, alive);
@@ -709,64 +737,74 @@ impl Simulation {
         }
         let fnum = plan.fnum;
         let dt = plan.dt;
-        let stats: Vec<CollisionStats> = self.crew.map(blocks, |_, b| {
-            let mut rng = stream(
-                seed,
-                step,
-                Stage::Collide,
-                (b.first_cell / CELL_BLOCK) as u64,
-            );
-            let mut scratch = Scratch::default();
-            let mut st = CollisionStats::default();
-            let base = offsets[b.first_cell * ss] as usize;
-            let Block {
-                z,
-                r,
-                vz,
-                vr,
-                vt,
-                erot,
-                species,
-                scm,
-                first_cell,
-            } = b;
-            let ncells = scm.len() / (ns * ns);
-            let mut sub_offsets = vec![0u32; ss + 1];
-            for k in 0..ncells {
-                let c = first_cell + k;
-                let lo = offsets[c * ss] as usize - base;
-                let hi = offsets[(c + 1) * ss] as usize - base;
-                if hi - lo < 2 {
-                    continue;
-                }
-                for (s, o) in sub_offsets.iter_mut().enumerate() {
-                    *o = offsets[c * ss + s] - offsets[c * ss];
-                }
-                let mut cell = CellMolecules {
-                    z: &z[lo..hi],
-                    r: &r[lo..hi],
-                    vz: &mut vz[lo..hi],
-                    vr: &mut vr[lo..hi],
-                    vt: &mut vt[lo..hi],
-                    erot: &mut erot[lo..hi],
-                    species: &species[lo..hi],
-                    sub_offsets: &sub_offsets,
-                };
-                let w = plan.weights.factor[c % rows];
-                collide_cell(
-                    model,
-                    &mut cell,
-                    fnum * w,
-                    plan.grid.volume[c],
-                    dt,
-                    &mut scm[k * ns * ns..(k + 1) * ns * ns],
-                    &mut rng,
-                    &mut scratch,
-                    &mut st,
+        let starts = crate::sample::thread_starts(
+            offsets,
+            CELL_BLOCK * ss,
+            blocks.len(),
+            self.crew.threads(),
+        );
+        let stats: Vec<CollisionStats> = self.crew.map_split(
+            blocks,
+            |t| starts[t],
+            |_, b| {
+                let mut rng = stream(
+                    seed,
+                    step,
+                    Stage::Collide,
+                    (b.first_cell / CELL_BLOCK) as u64,
                 );
-            }
-            st
-        });
+                let mut scratch = Scratch::default();
+                let mut st = CollisionStats::default();
+                let base = offsets[b.first_cell * ss] as usize;
+                let Block {
+                    z,
+                    r,
+                    vz,
+                    vr,
+                    vt,
+                    erot,
+                    species,
+                    scm,
+                    first_cell,
+                } = b;
+                let ncells = scm.len() / (ns * ns);
+                let mut sub_offsets = vec![0u32; ss + 1];
+                for k in 0..ncells {
+                    let c = first_cell + k;
+                    let lo = offsets[c * ss] as usize - base;
+                    let hi = offsets[(c + 1) * ss] as usize - base;
+                    if hi - lo < 2 {
+                        continue;
+                    }
+                    for (s, o) in sub_offsets.iter_mut().enumerate() {
+                        *o = offsets[c * ss + s] - offsets[c * ss];
+                    }
+                    let mut cell = CellMolecules {
+                        z: &z[lo..hi],
+                        r: &r[lo..hi],
+                        vz: &mut vz[lo..hi],
+                        vr: &mut vr[lo..hi],
+                        vt: &mut vt[lo..hi],
+                        erot: &mut erot[lo..hi],
+                        species: &species[lo..hi],
+                        sub_offsets: &sub_offsets,
+                    };
+                    let w = plan.weights.factor[c % rows];
+                    collide_cell(
+                        model,
+                        &mut cell,
+                        fnum * w,
+                        plan.grid.volume[c],
+                        dt,
+                        &mut scm[k * ns * ns..(k + 1) * ns * ns],
+                        &mut rng,
+                        &mut scratch,
+                        &mut st,
+                    );
+                }
+                st
+            },
+        );
         if self.sampling() {
             for s in &stats {
                 self.collision_stats.merge(s);
@@ -888,6 +926,84 @@ impl Simulation {
 
 /// Sort key of a molecule marked dead: it is not placed, so the sort also compacts.
 const DEAD_KEY: u32 = u32::MAX;
+
+/// Molecules per inflow work unit (fixed: results must not depend on threads).
+const INJECT_UNIT: u64 = 1024;
+
+/// Append the survivors of the inflow units to the arrays, in unit order, each unit copied
+/// by one thread into its own range of every column.
+fn append(crew: &Crew, m: &mut Molecules, units: &[InflowUnit]) {
+    let total: usize = units.iter().map(|u| u.1.len()).sum();
+    if total == 0 {
+        return;
+    }
+    m.reserve(total);
+    fn split<'a, T>(
+        v: &'a mut Vec<T>,
+        total: usize,
+        units: &[InflowUnit],
+    ) -> Vec<&'a mut [std::mem::MaybeUninit<T>]> {
+        let mut rest = &mut v.spare_capacity_mut()[..total];
+        let mut out = Vec::with_capacity(units.len());
+        for u in units {
+            let (a, b) = std::mem::take(&mut rest).split_at_mut(u.1.len());
+            out.push(a);
+            rest = b;
+        }
+        out
+    }
+    type Slot<'a, T> = &'a mut [std::mem::MaybeUninit<T>];
+    type Columns<'a> = (
+        (
+            (
+                (
+                    ((Slot<'a, f64>, Slot<'a, f64>), Slot<'a, Stored>),
+                    Slot<'a, Stored>,
+                ),
+                Slot<'a, Stored>,
+            ),
+            Slot<'a, Stored>,
+        ),
+        Slot<'a, u8>,
+    );
+    let items: Vec<Columns> = split(&mut m.z, total, units)
+        .into_iter()
+        .zip(split(&mut m.r, total, units))
+        .zip(split(&mut m.vz, total, units))
+        .zip(split(&mut m.vr, total, units))
+        .zip(split(&mut m.vt, total, units))
+        .zip(split(&mut m.erot, total, units))
+        .zip(split(&mut m.species, total, units))
+        .collect();
+    let copy = |u: usize, ((((((z, r), vz), vr), vt), erot), sp): Columns| {
+        for (j, (f, e, s)) in units[u].1.iter().enumerate() {
+            z[j].write(f.z);
+            r[j].write(f.r);
+            vz[j].write(f.vz as Stored);
+            vr[j].write(f.vr as Stored);
+            vt[j].write(f.vt as Stored);
+            erot[j].write(*e as Stored);
+            sp[j].write(*s);
+        }
+    };
+    if total < INJECT_UNIT as usize {
+        items.into_iter().enumerate().for_each(|(u, c)| copy(u, c));
+    } else {
+        crew.for_each(items, copy);
+    }
+    // SAFETY: the units' ranges tile len..len + total of every column (split above), and
+    // each unit wrote every element of its range; the capacity was reserved.
+    unsafe {
+        let n = m.len() + total;
+        m.z.set_len(n);
+        m.r.set_len(n);
+        m.vz.set_len(n);
+        m.vr.set_len(n);
+        m.vt.set_len(n);
+        m.erot.set_len(n);
+        m.species.set_len(n);
+    }
+}
 
 /// Write access to the capacity of one vector, shared by the workers of the sort's placement.
 struct SharedWrites<T>(*mut T, usize);

@@ -17,6 +17,8 @@ pub enum Stage {
     Inject = 3,
     Reweight = 4,
     Collide = 5,
+    /// The number of molecules each inflow element injects in a step.
+    InjectCount = 6,
 }
 
 /// SplitMix64 finaliser (Steele, Lea & Flood 2014): a bijective 64-bit mixer.

@@ -224,8 +224,14 @@ fn helium_argon_mixture_follows_grahams_law() {
         f.inverse_square_coefficient,
         f.light_enrichment.unwrap()
     );
-    assert!((f.density_decay_exponent / exponent - 1.0).abs() < 0.03);
-    assert!((f.inverse_square_coefficient / coefficient - 1.0).abs() < 0.03);
+    // The fit's CI comes from the scatter of the cell densities about the line, but
+    // neighbouring axis cells are correlated (a molecule flying along the axis is counted in
+    // several of them), so the fit scatters more than its CI says: over seeds 11–14 the
+    // exponent was 1.881 ± 0.051, 1.951 ± 0.062, 2.019 ± 0.061 and 2.010 ± 0.064 and the
+    // coefficient within −2.3 % and +2.7 % of theory. Hence 3 % or two CIs, and 4 %.
+    let tolerance = (0.03 * exponent).max(2.0 * f.density_decay_exponent_ci95);
+    assert!((f.density_decay_exponent - exponent).abs() < tolerance);
+    assert!((f.inverse_square_coefficient / coefficient - 1.0).abs() < 0.04);
     let x = f.light_mole_fraction.unwrap();
     let dt = s.numerics.time_step_s;
     let length = f.to_exit_plane_m - f.from_exit_plane_m + 0.25 * a;
