@@ -249,6 +249,30 @@ impl Domain {
     /// must end strictly inside. r² along a straight 3-D flight is a convex function of time,
     /// so r² ≤ R² at the start and r² < R² at the end give r² < R² at every later time; z is
     /// monotonic. The test is exact and needs no division or square root.
+    /// The open boundary through which a straight flight from axial position `z` to
+    /// (`z_end`, r² = `r2_end`) leaves the domain, when it starts in a reservoir region
+    /// (upstream z < 0 or downstream z > t), stays on that side of the partition and ends
+    /// outside the domain; None otherwise (the general search decides). A reservoir region is
+    /// convex and its only wall is the partition face, which a flight that stays on its side
+    /// never reaches, so such a flight meets nothing before the region's open outer boundary
+    /// (plane or cylinder, both open to the same reservoir): the search would give the same
+    /// fate, and a leaving molecule draws no random numbers, so results are unchanged.
+    #[inline]
+    pub fn flight_leaves_reservoir(&self, z: f64, z_end: f64, r2_end: f64) -> Option<SurfaceRole> {
+        let outside =
+            z_end <= self.z_min || z_end >= self.z_max || r2_end >= self.r_max * self.r_max;
+        if !outside {
+            None
+        } else if z < 0.0 && z_end < 0.0 {
+            Some(SurfaceRole::UpstreamBoundary)
+        } else if z > self.thickness && z_end > self.thickness {
+            Some(SurfaceRole::DownstreamBoundary)
+        } else {
+            None
+        }
+    }
+
+    /// See [`Domain::flight_leaves_reservoir`].
     #[inline]
     pub fn flight_stays_in_region(&self, z: f64, r2: f64, z_end: f64, r2_end: f64) -> bool {
         let t = self.thickness;
@@ -456,6 +480,61 @@ pub fn rotate(zn: f64, x: f64, y: f64, r2: f64, vr: f64, vt: f64) -> (f64, f64, 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use rand::{Rng, SeedableRng};
+
+    /// The shortcut for leaving flights must agree with the exact search: whenever it names a
+    /// boundary, the first surface the search finds is an open boundary of that reservoir.
+    /// Random flights start anywhere in the gas (half of them on a reservoir face, as entering
+    /// molecules do), in both symmetries and for a thin and a thick partition.
+    #[test]
+    fn leaving_shortcut_agrees_with_the_search() {
+        let mut rng = rand::rngs::SmallRng::seed_from_u64(7);
+        for symmetry in [Symmetry::Axisymmetric, Symmetry::Planar] {
+            for thickness in [0.0, 0.8] {
+                let d = Domain::new(symmetry, 1.0, thickness, 1.5, 1.5, 2.5);
+                let (mut named, mut checked) = (0, 0);
+                while checked < 20_000 {
+                    let mut f = Flight {
+                        z: rng.random_range(d.z_min..d.z_max),
+                        r: rng.random_range(0.0..d.r_max),
+                        vz: rng.random_range(-1.0..1.0),
+                        vr: rng.random_range(-1.0..1.0),
+                        vt: rng.random_range(-1.0..1.0),
+                    };
+                    let mut last = None;
+                    if rng.random::<bool>() {
+                        // On the upstream plane or the outer cylinder, moving inwards.
+                        if rng.random::<bool>() {
+                            f.z = d.z_min;
+                            f.vz = f.vz.abs();
+                            last = Some(Domain::UPSTREAM_PLANE);
+                        } else {
+                            f.r = d.r_max;
+                            f.z = rng.random_range(d.z_min..0.0);
+                            f.vr = -f.vr.abs();
+                            last = Some(Domain::UPSTREAM_CYLINDER);
+                        }
+                    }
+                    let in_wall = f.z >= 0.0 && f.z <= thickness && f.r >= 1.0;
+                    if in_wall {
+                        continue;
+                    }
+                    checked += 1;
+                    let dt = rng.random_range(0.1..3.0);
+                    let x = f.r + f.vr * dt;
+                    let y = symmetry.in_plane(f.vt) * dt;
+                    let Some(role) = d.flight_leaves_reservoir(f.z, f.z + f.vz * dt, x * x + y * y)
+                    else {
+                        continue;
+                    };
+                    named += 1;
+                    let (_, id) = d.first_hit(&f, dt, last).expect("a leaving flight hits");
+                    assert_eq!(d.surfaces[id].role, role, "{f:?} dt {dt}");
+                }
+                assert!(named > 2_000, "too few leaving flights tested: {named}");
+            }
+        }
+    }
 
     #[test]
     fn cylinder_roots_from_inside_and_outside() {

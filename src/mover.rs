@@ -76,6 +76,12 @@ pub fn advance<R: Rng + ?Sized, F: FnMut(f64, f64, f64)>(
             m.vt = vtn;
             return Fate::Stays;
         }
+        // Most other flights of a small domain simply leave it.
+        if !crosses {
+            if let Some(role) = geom.flight_leaves_reservoir(m.z, zn, r2) {
+                return Fate::Left(role);
+            }
+        }
     }
     search(geom, wall, m, dt, last, z_count, rng, on_cross, diffused)
 }
