@@ -9,9 +9,11 @@
 //! chunks of [`CHUNK`] molecules, the collisions and the sampling over fixed blocks of cells,
 //! each work unit with its own random stream keyed by (seed, step, stage, unit); results are
 //! merged in unit order, so a run is bit-identical for any number of threads. The sort is a
-//! stable counting sort, whose result is unique however it is split between threads. Buffers
-//! that scale with the molecules (sort keys, one spare column per element type, partial field
-//! sums) live in the simulation and are reused from step to step. Invariants: after every step
+//! stable counting sort, whose result is unique however it is split between threads. The
+//! parallel stages run on the simulation's [`Crew`], whose workers stay awake between stages.
+//! Buffers that scale with the molecules (sort keys, the sort's permutation, one spare column
+//! per element type, partial field sums) live in the simulation and are reused from step to
+//! step. Invariants: after every step
 //! no molecule lies inside a wall or outside the domain, and the particle balance
 //! `initial + injected + released − left − deleted = population` holds exactly.
 
