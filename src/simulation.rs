@@ -11,8 +11,8 @@
 //! merged in unit order, so a run is bit-identical for any number of threads. The sort is a
 //! stable counting sort, whose result is unique however it is split between threads. The
 //! parallel stages run on the simulation's [`Crew`], whose workers stay awake between stages.
-//! Buffers that scale with the molecules (sort keys, the sort's permutation, one spare column
-//! per element type, partial field sums) live in the simulation and are reused from step to
+//! Buffers that scale with the molecules (sort keys, one spare column per element type,
+//! partial field sums) live in the simulation and are reused from step to
 //! step. Invariants: after every step
 //! no molecule lies inside a wall or outside the domain, and the particle balance
 //! `initial + injected + released − left − deleted = population` holds exactly.
@@ -101,12 +101,11 @@ type InflowUnit = (u64, Vec<(Flight, f64, u8)>, MoveReport);
 /// Buffers of the sort, reused from step to step (never part of the saved state).
 #[derive(Default)]
 struct SortScratch {
-    /// Sort key of each molecule (`DEAD_KEY` for the molecules to drop).
+    /// Sort key of each molecule (`DEAD_KEY` for the molecules to drop); after the sort,
+    /// the permutation it applied.
     keys: Vec<u32>,
     /// Per-block key counts, then per-block write cursors (block-major).
     counts: Vec<u32>,
-    /// The sorted order: source index of the molecule at each position.
-    perm: Vec<u32>,
     /// The one spare column per element type that a column is reordered into.
     f64_column: Vec<f64>,
     stored_column: Vec<Stored>,
@@ -638,9 +637,19 @@ impl Simulation {
             }
         }
         let alive = pos as usize;
-        s.perm.clear();
-        make_room(&mut s.perm, alive);
-        let out = SharedWrites(s.perm.as_mut_ptr(), alive);
+        // The permutation has no array of its own (that would cost 4 B per molecule): it is
+        // written into the spare 4-byte column, each index as the bit pattern of a `Stored`
+        // (`from_bits`/`to_bits` round-trip every pattern; indices stay far below the NaN
+        // patterns, asserted), used for the 8- and 1-byte columns, then copied into the keys,
+        // which are spent by then, and used from there for the 4-byte columns.
+        assert!(
+            alive < 0x7F80_0000,
+            "too many molecules for the sort's index encoding"
+        );
+        let perm_bits = &mut s.stored_column;
+        perm_bits.clear();
+        make_room(perm_bits, alive);
+        let out = SharedWrites(perm_bits.as_mut_ptr(), alive);
         let items: Vec<_> = s
             .counts
             .chunks_mut(nkeys)
@@ -650,22 +659,37 @@ impl Simulation {
             for (i, &k) in (b * block_len..).zip(k) {
                 if k != DEAD_KEY {
                     let c = &mut cursor[k as usize];
-                    out.write(*c as usize, i as u32);
+                    out.write(*c as usize, Stored::from_bits(i as u32));
                     *c += 1;
                 }
             }
         });
         // SAFETY: the cursors enumerate exactly the positions 0..alive, one per live molecule,
         // so the loop above wrote each of them once (within the capacity: make_room).
-        unsafe { s.perm.set_len(alive) };
-        let perm = &s.perm;
+        unsafe { perm_bits.set_len(alive) };
+        let perm = &s.stored_column[..];
         gather(crew, &mut m.z, &mut s.f64_column, perm);
         gather(crew, &mut m.r, &mut s.f64_column, perm);
+        gather(crew, &mut m.species, &mut s.u8_column, perm);
+        s.keys.clear();
+        make_room(&mut s.keys, alive);
+        let block = alive.div_ceil(crew.threads()).max(1);
+        let items: Vec<_> = s.keys.spare_capacity_mut()[..alive]
+            .chunks_mut(block)
+            .zip(perm.chunks(block))
+            .collect();
+        crew.for_each(items, |_, (out, p)| {
+            for (o, p) in out.iter_mut().zip(p) {
+                o.write(p.to_bits());
+            }
+        });
+        // SAFETY: the blocks tile 0..alive and each wrote all of its elements.
+        unsafe { s.keys.set_len(alive) };
+        let perm = &s.keys[..];
         gather(crew, &mut m.vz, &mut s.stored_column, perm);
         gather(crew, &mut m.vr, &mut s.stored_column, perm);
         gather(crew, &mut m.vt, &mut s.stored_column, perm);
         gather(crew, &mut m.erot, &mut s.stored_column, perm);
-        gather(crew, &mut m.species, &mut s.u8_column, perm);
     }
 
     /// Stage: NTC collisions in every cell, in parallel over fixed blocks of cells.
@@ -834,7 +858,6 @@ impl Simulation {
             + bytes(&m.erot)
             + bytes(&m.species)
             + bytes(&s.keys)
-            + bytes(&s.perm)
             + bytes(&s.f64_column)
             + bytes(&s.stored_column)
             + bytes(&s.u8_column)
@@ -1030,11 +1053,11 @@ impl<T> SharedWrites<T> {
 /// `spare` (its old contents are not read) and the two vectors are swapped, so the old column
 /// becomes the next column's scratch. One unit per thread, each writing a contiguous range (a
 /// gather is a plain copy of even cost; smaller units measured no better).
-fn gather<T: Copy + Send + Sync>(
+fn gather<T: Copy + Send + Sync, P: SourceIndex>(
     crew: &Crew,
     column: &mut Vec<T>,
     spare: &mut Vec<T>,
-    perm: &[u32],
+    perm: &[P],
 ) {
     let n = perm.len();
     spare.clear();
@@ -1047,13 +1070,33 @@ fn gather<T: Copy + Send + Sync>(
         .collect();
     crew.for_each(items, |_, (out, p)| {
         for (o, &i) in out.iter_mut().zip(p) {
-            o.write(src[i as usize]);
+            o.write(src[i.index()]);
         }
     });
     // SAFETY: every one of the first n elements was written just above (the zip covers
     // 0..n, as `out` and `perm` have the same length n and the same block split).
     unsafe { spare.set_len(n) };
     std::mem::swap(column, spare);
+}
+
+/// An entry of the sort's permutation: a source index, held as a `u32` or as the bit pattern
+/// of a `Stored` (see `sort_by_cell`).
+trait SourceIndex: Copy + Send + Sync {
+    fn index(self) -> usize;
+}
+
+impl SourceIndex for u32 {
+    #[inline]
+    fn index(self) -> usize {
+        self as usize
+    }
+}
+
+impl SourceIndex for Stored {
+    #[inline]
+    fn index(self) -> usize {
+        self.to_bits() as usize
+    }
 }
 
 /// How a run ended.
