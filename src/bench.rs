@@ -196,14 +196,14 @@ pub fn workload(
     st.sample_s -= times0.sample_s;
     let array_bytes = Molecules::BYTES_PER_MOLECULE;
     // Bytes moved per particle-step, modelled from the passes over the arrays (b bytes per
-    // molecule): the move reads and writes them (2b); with collisions the sort reads z, r and
-    // species for the keys and writes them (21 + 4), counts them (4), turns them into
-    // destinations (8) and scatters every column with its destination (2b + 7 × 4), then the
+    // molecule): the move reads and writes them (2b); with collisions it also writes the sort
+    // keys (4), the sort counts them (4), reads them again to write the permutation (8),
+    // copies the permutation (8) and gathers every column through it (2b + 7 × 4), then the
     // collision stage and the sampling read the arrays once each (2b); without collisions the
     // gaps are closed (2b) and the sampling reads them (b).
     let b = array_bytes as f64;
     let modelled = if sim.plan.collisions.is_some() {
-        2.0 * b + (25.0 + 4.0 + 8.0 + 2.0 * b + 28.0) + 2.0 * b
+        2.0 * b + 4.0 + (4.0 + 8.0 + 8.0 + 2.0 * b + 28.0) + 2.0 * b
     } else {
         2.0 * b + 2.0 * b + b
     };
