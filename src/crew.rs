@@ -42,7 +42,7 @@ const COUNT: u64 = CLOSED - 1;
 /// alternately made each stage pull the other core's data across (the sort's column gathers
 /// did not scale at all).
 struct Job<'a> {
-    next: Vec<AtomicUsize>,
+    next: Vec<Padded>,
     ends: Vec<usize>,
     f: &'a (dyn Fn(usize) + Sync),
 }
@@ -65,7 +65,9 @@ impl Job<'_> {
         starts.push(n);
         let bound = |t: usize| starts[t];
         Job {
-            next: (0..threads).map(|t| AtomicUsize::new(bound(t))).collect(),
+            next: (0..threads)
+                .map(|t| Padded(AtomicUsize::new(bound(t))))
+                .collect(),
             ends: (1..=threads).map(bound).collect(),
             f,
         }
@@ -75,13 +77,45 @@ impl Job<'_> {
         let k = self.next.len();
         for u in (0..k).map(|j| (thread + j) % k) {
             loop {
-                let i = self.next[u].fetch_add(1, Ordering::Relaxed);
+                let i = self.next[u].0.fetch_add(1, Ordering::Relaxed);
                 if i >= self.ends[u] {
                     break;
                 }
                 (self.f)(i);
             }
         }
+    }
+}
+
+/// A range counter on a cache line of its own (two, against the adjacent-line prefetcher):
+/// with the counters side by side, every unit taken by one thread pulled the line away from the
+/// other (on two cores a job of 64 empty units cost 2 µs, 0.5 µs padded).
+#[repr(align(128))]
+struct Padded(AtomicUsize);
+
+/// One job's items or results, one slot per unit. A slot is touched only by the single run of
+/// its unit (the job hands out each unit once), and the caller reads the results only after
+/// the job has drained, so no lock is needed. (A mutex per slot made every unit bounce lock
+/// lines between the cores: a job of 64 units cost 8 µs on two threads.)
+struct Slots<T>(Vec<UnsafeCell<Option<T>>>);
+
+// SAFETY: see the type's comment: each slot is accessed by one thread at a time, the caller's
+// accesses are ordered after the workers' by the job's close (Acquire/Release on the state).
+unsafe impl<T: Send> Sync for Slots<T> {}
+
+impl<T> Slots<T> {
+    fn new(items: impl Iterator<Item = Option<T>>) -> Self {
+        Slots(items.map(UnsafeCell::new).collect())
+    }
+
+    /// SAFETY: the caller must be the only one to touch slot `i` while this runs.
+    unsafe fn take(&self, i: usize) -> Option<T> {
+        unsafe { (*self.0[i].get()).take() }
+    }
+
+    /// SAFETY: as for `take`.
+    unsafe fn put(&self, i: usize, v: T) {
+        unsafe { *self.0[i].get() = Some(v) }
     }
 }
 
@@ -217,23 +251,18 @@ impl Crew {
                 .map(|(i, t)| f(i, t))
                 .collect();
         }
-        let slots: Vec<Mutex<Option<T>>> = items.into_iter().map(|t| Mutex::new(Some(t))).collect();
-        let out: Vec<Mutex<Option<R>>> = (0..n).map(|_| Mutex::new(None)).collect();
+        let slots = Slots::new(items.into_iter().map(Some));
+        let out = Slots::new((0..n).map(|_| None));
         self.run_split(n, &first, &|i| {
-            let item = slots[i]
-                .lock()
-                .unwrap_or_else(|e| e.into_inner())
-                .take()
-                .expect("each unit runs once");
+            // SAFETY: unit i runs once, and only it touches slot i of either (see `Slots`).
+            let item = unsafe { slots.take(i) }.expect("each unit runs once");
             let r = f(i, item);
-            *out[i].lock().unwrap_or_else(|e| e.into_inner()) = Some(r);
+            unsafe { out.put(i, r) };
         });
-        out.into_iter()
-            .map(|m| {
-                m.into_inner()
-                    .unwrap_or_else(|e| e.into_inner())
-                    .expect("each unit ran")
-            })
+        // A panicking unit has been re-raised by `run_split`, so every slot is filled here.
+        out.0
+            .into_iter()
+            .map(|c| c.into_inner().expect("each unit ran"))
             .collect()
     }
 
