@@ -670,7 +670,14 @@ impl Simulation {
         let perm = &s.stored_column[..];
         gather(crew, &mut m.z, &mut s.f64_column, perm);
         gather(crew, &mut m.r, &mut s.f64_column, perm);
-        gather(crew, &mut m.species, &mut s.u8_column, perm);
+        // A one-species gas has nothing to reorder in the species column: every live molecule
+        // is species 0 (only the dead marks differ, and the sort drops those).
+        if self.plan.masses.len() == 1 {
+            m.species.clear();
+            m.species.resize(alive, 0);
+        } else {
+            gather(crew, &mut m.species, &mut s.u8_column, perm);
+        }
         s.keys.clear();
         make_room(&mut s.keys, alive);
         let block = alive.div_ceil(crew.threads()).max(1);
@@ -689,7 +696,14 @@ impl Simulation {
         gather(crew, &mut m.vz, &mut s.stored_column, perm);
         gather(crew, &mut m.vr, &mut s.stored_column, perm);
         gather(crew, &mut m.vt, &mut s.stored_column, perm);
-        gather(crew, &mut m.erot, &mut s.stored_column, perm);
+        // Without rotational modes every rotational energy is exactly zero (drawn as 0 at
+        // entry and at walls, never changed by a collision), so the column only shrinks.
+        if self.plan.rot_dof.iter().all(|&d| d == 0) {
+            debug_assert!(m.erot.iter().all(|&e| e == 0.0));
+            m.erot.truncate(alive);
+        } else {
+            gather(crew, &mut m.erot, &mut s.stored_column, perm);
+        }
     }
 
     /// Stage: NTC collisions in every cell, in parallel over fixed blocks of cells.
