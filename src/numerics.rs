@@ -35,9 +35,9 @@ use crate::reservoir::{inflow_elements, InflowElement, ReservoirSide};
 use crate::weights::RadialWeights;
 use serde::Serialize;
 
-/// Molecules per work chunk of the move stage (fixed: results must not depend on threads).
-/// Small enough that the 35 000 molecules of a δ ≈ 1 run make 17 chunks, which two threads
-/// share evenly (with 9 chunks one thread has a chunk more: 6 % idle).
+/// Molecules per work chunk of the free-molecular move, of its gap closing and of the
+/// newcomers' sort keys (fixed: results must not depend on threads). The DSMC move uses the
+/// smaller `simulation::DSMC_MOVE_UNIT`.
 pub const CHUNK: usize = 2048;
 
 /// Default simulated molecules in the initial fill, free-molecular mode.
