@@ -109,9 +109,10 @@ type InflowUnit = (u64, Vec<(Flight, f64, u8)>, MoveReport);
 /// Buffers of the sort, reused from step to step (never part of the saved state).
 #[derive(Default)]
 struct SortScratch {
-    /// Sort key of each molecule (`DEAD_KEY` for the molecules to drop); after the sort,
-    /// the permutation it applied.
-    keys: Vec<u32>,
+    /// Sort key of each molecule (`DEAD_KEY` for the molecules to drop), held as the bit
+    /// pattern of a `Stored` (`from_bits`/`to_bits` round-trip every pattern) so that, once
+    /// spent, the buffer is the spare column of the 4-byte gathers.
+    keys: Vec<Stored>,
     /// Per-block key counts, then per-block write cursors (block-major).
     counts: Vec<u32>,
     /// The one spare column per element type that a column is reordered into.
@@ -387,7 +388,7 @@ impl Simulation {
         let keys = &mut self.sort.keys;
         let grow = m.len().saturating_sub(keys.len());
         make_room(keys, grow);
-        keys.resize(m.len(), 0);
+        keys.resize(m.len(), 0.0);
         self.keyed = m.len();
         let unit = if compacting { CHUNK } else { DSMC_MOVE_UNIT };
         let chunks: Vec<_> =
@@ -425,11 +426,11 @@ impl Simulation {
                     ) {
                         Fate::Stays => {
                             if !compacting {
-                                key[i] = if one_subcell {
+                                key[i] = Stored::from_bits(if one_subcell {
                                     (grid.z.locate(f.z).0 * rows + row) as u32
                                 } else {
                                     grid.key(f.z, f.r) as u32
-                                };
+                                });
                             }
                             let j = if compacting { w } else { i };
                             z[j] = f.z;
@@ -444,7 +445,7 @@ impl Simulation {
                         Fate::Left(_) => {
                             if !compacting {
                                 sp[i] = DEAD;
-                                key[i] = DEAD_KEY;
+                                key[i] = Stored::from_bits(DEAD_KEY);
                             }
                         }
                     }
@@ -565,16 +566,16 @@ impl Simulation {
         let crew = &self.crew;
         let grow = n.saturating_sub(s.keys.len());
         make_room(&mut s.keys, grow);
-        s.keys.resize(n, 0);
+        s.keys.resize(n, 0.0);
         // The move keyed the molecules it moved; the ones that joined since need keys.
         let keyed = self.keyed.min(n);
-        let key_of = |k: &mut [u32], z: &[f64], r: &[f64], sp: &[u8]| {
+        let key_of = |k: &mut [Stored], z: &[f64], r: &[f64], sp: &[u8]| {
             for i in 0..k.len() {
-                k[i] = if sp[i] == DEAD {
+                k[i] = Stored::from_bits(if sp[i] == DEAD {
                     DEAD_KEY
                 } else {
                     grid.key(z[i], r[i]) as u32
-                };
+                });
             }
         };
         // Usually a few hundred newcomers: not worth waking the other threads.
@@ -611,7 +612,8 @@ impl Simulation {
             .zip(keys.chunks(block_len))
             .collect();
         crew.for_each(items, |_, (c, k)| {
-            for &k in k {
+            for k in k {
+                let k = k.to_bits();
                 if k != DEAD_KEY {
                     c[k as usize] += 1;
                 }
@@ -649,8 +651,7 @@ impl Simulation {
         // The permutation has no array of its own (that would cost 4 B per molecule): it is
         // written into the spare 4-byte column, each index as the bit pattern of a `Stored`
         // (`from_bits`/`to_bits` round-trip every pattern; indices stay far below the NaN
-        // patterns, asserted), used for the 8- and 1-byte columns, then copied into the keys,
-        // which are spent by then, and used from there for the 4-byte columns.
+        // patterns, asserted). The 4-byte columns are then gathered into the spent keys.
         assert!(
             alive < 0x7F80_0000,
             "too many molecules for the sort's index encoding"
@@ -665,7 +666,8 @@ impl Simulation {
             .zip(keys.chunks(block_len))
             .collect();
         crew.for_each(items, |b, (cursor, k)| {
-            for (i, &k) in (b * block_len..).zip(k) {
+            for (i, k) in (b * block_len..).zip(k) {
+                let k = k.to_bits();
                 if k != DEAD_KEY {
                     let c = &mut cursor[k as usize];
                     out.write(*c as usize, Stored::from_bits(i as u32));
@@ -687,31 +689,18 @@ impl Simulation {
         } else {
             gather(crew, &mut m.species, &mut s.u8_column, perm);
         }
-        s.keys.clear();
-        make_room(&mut s.keys, alive);
-        let block = alive.div_ceil(crew.threads()).max(1);
-        let items: Vec<_> = s.keys.spare_capacity_mut()[..alive]
-            .chunks_mut(block)
-            .zip(perm.chunks(block))
-            .collect();
-        crew.for_each(items, |_, (out, p)| {
-            for (o, p) in out.iter_mut().zip(p) {
-                o.write(p.to_bits());
-            }
-        });
-        // SAFETY: the blocks tile 0..alive and each wrote all of its elements.
-        unsafe { s.keys.set_len(alive) };
-        let perm = &s.keys[..];
-        gather(crew, &mut m.vz, &mut s.stored_column, perm);
-        gather(crew, &mut m.vr, &mut s.stored_column, perm);
-        gather(crew, &mut m.vt, &mut s.stored_column, perm);
+        // The keys are spent: their buffer is the 4-byte columns' spare (it ends up holding
+        // one of the old columns, and the next move overwrites every key).
+        gather(crew, &mut m.vz, &mut s.keys, perm);
+        gather(crew, &mut m.vr, &mut s.keys, perm);
+        gather(crew, &mut m.vt, &mut s.keys, perm);
         // Without rotational modes every rotational energy is exactly zero (drawn as 0 at
         // entry and at walls, never changed by a collision), so the column only shrinks.
         if self.plan.rot_dof.iter().all(|&d| d == 0) {
             debug_assert!(m.erot.iter().all(|&e| e == 0.0));
             m.erot.truncate(alive);
         } else {
-            gather(crew, &mut m.erot, &mut s.stored_column, perm);
+            gather(crew, &mut m.erot, &mut s.keys, perm);
         }
     }
 
@@ -1075,12 +1064,13 @@ impl<T> SharedWrites<T> {
 /// Reorder one column: position d receives molecule `perm[d]`. The result is built in
 /// `spare` (its old contents are not read) and the two vectors are swapped, so the old column
 /// becomes the next column's scratch. One unit per thread, each writing a contiguous range (a
-/// gather is a plain copy of even cost; smaller units measured no better).
-fn gather<T: Copy + Send + Sync, P: SourceIndex>(
+/// gather is a plain copy of even cost; smaller units measured no better). Each entry of
+/// `perm` is a source index held as the bit pattern of a `Stored` (see `sort_by_cell`).
+fn gather<T: Copy + Send + Sync>(
     crew: &Crew,
     column: &mut Vec<T>,
     spare: &mut Vec<T>,
-    perm: &[P],
+    perm: &[Stored],
 ) {
     let n = perm.len();
     spare.clear();
@@ -1092,34 +1082,14 @@ fn gather<T: Copy + Send + Sync, P: SourceIndex>(
         .zip(perm.chunks(block))
         .collect();
     crew.for_each(items, |_, (out, p)| {
-        for (o, &i) in out.iter_mut().zip(p) {
-            o.write(src[i.index()]);
+        for (o, i) in out.iter_mut().zip(p) {
+            o.write(src[i.to_bits() as usize]);
         }
     });
     // SAFETY: every one of the first n elements was written just above (the zip covers
     // 0..n, as `out` and `perm` have the same length n and the same block split).
     unsafe { spare.set_len(n) };
     std::mem::swap(column, spare);
-}
-
-/// An entry of the sort's permutation: a source index, held as a `u32` or as the bit pattern
-/// of a `Stored` (see `sort_by_cell`).
-trait SourceIndex: Copy + Send + Sync {
-    fn index(self) -> usize;
-}
-
-impl SourceIndex for u32 {
-    #[inline]
-    fn index(self) -> usize {
-        self as usize
-    }
-}
-
-impl SourceIndex for Stored {
-    #[inline]
-    fn index(self) -> usize {
-        self.to_bits() as usize
-    }
 }
 
 /// How a run ended.
