@@ -125,8 +125,10 @@ struct SortScratch {
 #[derive(Debug, Clone, Copy, Default, PartialEq, serde::Serialize)]
 pub struct StageTimes {
     pub release_s: f64,
+    /// The move's job, which also draws a small inflow (under `INJECT_UNIT` molecules).
     pub move_s: f64,
     pub compact_s: f64,
+    /// The inflow's counts and bookkeeping, and the drawing of a large inflow.
     pub inject_s: f64,
     pub sort_s: f64,
     pub collide_s: f64,
@@ -298,13 +300,27 @@ impl Simulation {
     /// Advance by one time step.
     pub fn step(&mut self) {
         let mut t = self.times;
-        let mut crossings = timed(&mut t.move_s, || self.move_molecules());
+        // The inflow does not depend on the move (its molecules fly their own fraction of the
+        // step), so a small one is drawn inside the move's job, where its few tens of
+        // microseconds fill the job's tail instead of running alone on one thread.
+        let inflow = timed(&mut t.inject_s, || self.inflow_units());
+        let small = inflow.iter().map(|u| u.2).sum::<u64>() < INJECT_UNIT;
+        let (mut crossings, drawn) = timed(&mut t.move_s, || {
+            self.move_molecules(if small { &inflow[..] } else { &[] })
+        });
         // With collisions the sort drops the dead molecules, after the newcomers joined.
         if self.plan.collisions.is_none() {
             let (m, kept) = (&mut self.molecules, &self.kept);
             timed(&mut t.compact_s, || m.close_gaps(CHUNK, kept));
         }
-        timed(&mut t.inject_s, || self.inject(&mut crossings));
+        timed(&mut t.inject_s, || {
+            let drawn = if small {
+                drawn
+            } else {
+                self.draw_inflow(inflow)
+            };
+            self.absorb_inflow(drawn, &mut crossings)
+        });
         // Clones join at the end of their release step, where the time-shifted copy of the
         // original sits at the cloning position; they fly from the next step on.
         timed(&mut t.release_s, || self.release_clones());
@@ -370,8 +386,10 @@ impl Simulation {
         self.balance.clones_released += released;
     }
 
-    /// Stage: move every molecule for one step, in parallel over fixed chunks.
-    fn move_molecules(&mut self) -> Crossings {
+    /// Stage: move every molecule for one step, in parallel over fixed chunks; the `inflow`
+    /// units given are drawn in the same job (one work item after the chunks). Returns the
+    /// crossings of the move and the drawn inflow units.
+    fn move_molecules(&mut self, inflow: &[InflowPlan]) -> (Crossings, Vec<InflowUnit>) {
         let plan = &self.plan;
         let step = self.step;
         let seed = plan.case.solver.seed;
@@ -391,7 +409,7 @@ impl Simulation {
         keys.resize(m.len(), 0.0);
         self.keyed = m.len();
         let unit = if compacting { CHUNK } else { DSMC_MOVE_UNIT };
-        let chunks: Vec<_> =
+        let chunks =
             m.z.chunks_mut(unit)
                 .zip(m.r.chunks_mut(unit))
                 .zip(m.vz.chunks_mut(unit))
@@ -399,11 +417,20 @@ impl Simulation {
                 .zip(m.vt.chunks_mut(unit))
                 .zip(m.erot.chunks_mut(unit))
                 .zip(m.species.chunks_mut(unit))
-                .zip(keys.chunks_mut(unit))
-                .collect();
-        let reports: Vec<MoveReport> = self.crew.map(
-            chunks,
-            |ci, (((((((z, r), vz), vr), vt), erot), sp), key)| {
+                .zip(keys.chunks_mut(unit));
+        let items: Vec<_> = chunks
+            .map(MoveItem::Chunk)
+            .chain((!inflow.is_empty()).then_some(MoveItem::Inflow))
+            .collect();
+        let outcomes: Vec<MoveOutcome> = self.crew.map(items, |ci, item| {
+            let (((((((z, r), vz), vr), vt), erot), sp), key) = match item {
+                MoveItem::Chunk(c) => c,
+                MoveItem::Inflow => {
+                    let drawn = inflow.iter().map(|&u| inflow_unit(plan, step, u));
+                    return MoveOutcome::Inflow(drawn.collect());
+                }
+            };
+            MoveOutcome::Chunk({
                 let mut rng = stream(seed, step, Stage::Move, ci as u64);
                 let mut rep = MoveReport::new(nspecies);
                 // Survivors are written to `w` ≤ i: compacted inside the chunk while
@@ -452,11 +479,19 @@ impl Simulation {
                 }
                 rep.kept = w;
                 rep
-            },
-        );
+            })
+        });
         let mut total = Crossings::new(nspecies);
+        let mut drawn = Vec::new();
         self.kept.clear();
-        for rep in reports {
+        for outcome in outcomes {
+            let rep = match outcome {
+                MoveOutcome::Chunk(rep) => rep,
+                MoveOutcome::Inflow(units) => {
+                    drawn = units;
+                    continue;
+                }
+            };
             self.kept.push(rep.kept);
             total.merge(&rep.crossings);
             self.balance.left_upstream += rep.left_up;
@@ -464,15 +499,15 @@ impl Simulation {
             self.balance.deleted_by_weighting += rep.deleted;
             self.pending.extend(rep.clones);
         }
-        total
+        (total, drawn)
     }
 
-    /// Stage: molecules entering from the reservoirs fly a random fraction of the step.
-    fn inject(&mut self, crossings: &mut Crossings) {
+    /// The inflow's work units of this step (stage: molecules entering from the reservoirs
+    /// fly a random fraction of the step).
+    fn inflow_units(&self) -> Vec<InflowPlan> {
         let plan = &self.plan;
         let step = self.step;
         let seed = plan.case.solver.seed;
-        let nspecies = plan.masses.len();
         // Each element draws its count from its own stream; its molecules are then split into
         // fixed units of at most INJECT_UNIT, each with its own stream (element, unit). The
         // split depends only on the counts, so the outcome does not depend on the thread
@@ -489,53 +524,17 @@ impl Simulation {
                 k += 1;
             }
         }
-        let unit = |_, (ei, k, n): (usize, u64, u64)| -> InflowUnit {
-            let el = &plan.inflow[ei];
-            let mut rng = stream(seed, step, Stage::Inject, (ei as u64) << 32 | k);
-            let mut rep = MoveReport::new(nspecies);
-            let s = el.species as usize;
-            let t_res = if el.upstream {
-                plan.case.upstream.temperature
-            } else {
-                plan.case.downstream.temperature
-            };
-            let mut born = Vec::with_capacity(n as usize);
-            for _ in 0..n {
-                let mut f = el.sample(&mut rng);
-                let mut erot = crate::maxwell::rotational_energy(plan.rot_dof[s], t_res, &mut rng);
-                let t = plan.dt * rng.random::<f64>();
-                // A molecule that dies on its entry flight (left or deleted by weighting)
-                // is counted by `fly_one`, so the balance still closes.
-                let fate = fly_one(
-                    plan,
-                    step,
-                    &mut f,
-                    &mut erot,
-                    s,
-                    t,
-                    Some(el.surface),
-                    &mut rng,
-                    &mut rep,
-                    &mut 0,
-                );
-                if fate == Fate::Stays {
-                    born.push((f, erot, el.species));
-                }
-            }
-            (n, born, rep)
-        };
-        // A DSMC run into vacuum injects a few hundred molecules per step: waking the crew for
-        // them costs more than it saves (the outcome is the same either way).
-        let total: u64 = units.iter().map(|u| u.2).sum();
-        let units: Vec<InflowUnit> = if total < INJECT_UNIT {
-            units
-                .into_iter()
-                .enumerate()
-                .map(|(i, u)| unit(i, u))
-                .collect()
-        } else {
-            self.crew.map(units, unit)
-        };
+        units
+    }
+
+    /// Draw a large inflow's units in parallel (a small one is drawn in the move's job).
+    fn draw_inflow(&self, units: Vec<InflowPlan>) -> Vec<InflowUnit> {
+        let (plan, step) = (&self.plan, self.step);
+        self.crew.map(units, |_, u| inflow_unit(plan, step, u))
+    }
+
+    /// Book the drawn inflow units (in unit order) and append their survivors.
+    fn absorb_inflow(&mut self, units: Vec<InflowUnit>, crossings: &mut Crossings) {
         for (n, _, rep) in &units {
             self.balance.injected += n;
             self.balance.left_upstream += rep.left_up;
@@ -963,6 +962,80 @@ impl Simulation {
 
 /// Sort key of a molecule marked dead: it is not placed, so the sort also compacts.
 const DEAD_KEY: u32 = u32::MAX;
+
+/// One inflow work unit to draw: (element index, unit index within the element, molecules).
+type InflowPlan = (usize, u64, u64);
+
+/// A work item of the move's job: a chunk of the molecule columns (z, r, vz, vr, vt, erot,
+/// species, sort keys), or the whole small inflow of the step.
+#[allow(clippy::type_complexity)]
+enum MoveItem<'a> {
+    Chunk(
+        (
+            (
+                (
+                    (
+                        (
+                            ((&'a mut [f64], &'a mut [f64]), &'a mut [Stored]),
+                            &'a mut [Stored],
+                        ),
+                        &'a mut [Stored],
+                    ),
+                    &'a mut [Stored],
+                ),
+                &'a mut [u8],
+            ),
+            &'a mut [Stored],
+        ),
+    ),
+    Inflow,
+}
+
+/// What a work item of the move's job produced. (All but at most one are chunk reports, so
+/// the size difference costs nothing that boxing the report would not cost more.)
+#[allow(clippy::large_enum_variant)]
+enum MoveOutcome {
+    Chunk(MoveReport),
+    Inflow(Vec<InflowUnit>),
+}
+
+/// Draw one inflow unit: its molecules enter on their element and fly a uniformly random
+/// fraction of the step. A molecule that dies on its entry flight (left or deleted by
+/// weighting) is counted by `fly_one`, so the balance still closes.
+fn inflow_unit(plan: &Plan, step: u64, (ei, k, n): InflowPlan) -> InflowUnit {
+    let el = &plan.inflow[ei];
+    let seed = plan.case.solver.seed;
+    let mut rng = stream(seed, step, Stage::Inject, (ei as u64) << 32 | k);
+    let mut rep = MoveReport::new(plan.masses.len());
+    let s = el.species as usize;
+    let t_res = if el.upstream {
+        plan.case.upstream.temperature
+    } else {
+        plan.case.downstream.temperature
+    };
+    let mut born = Vec::with_capacity(n as usize);
+    for _ in 0..n {
+        let mut f = el.sample(&mut rng);
+        let mut erot = crate::maxwell::rotational_energy(plan.rot_dof[s], t_res, &mut rng);
+        let t = plan.dt * rng.random::<f64>();
+        let fate = fly_one(
+            plan,
+            step,
+            &mut f,
+            &mut erot,
+            s,
+            t,
+            Some(el.surface),
+            &mut rng,
+            &mut rep,
+            &mut 0,
+        );
+        if fate == Fate::Stays {
+            born.push((f, erot, el.species));
+        }
+    }
+    (n, born, rep)
+}
 
 /// Molecules per inflow work unit (fixed: results must not depend on threads).
 const INJECT_UNIT: u64 = 1024;
