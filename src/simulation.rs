@@ -104,7 +104,10 @@ impl MoveReport {
 
 /// What one inflow element produced in a step: molecules drawn, survivors (flight, rotational
 /// energy, species) and the report of their entry flights.
-type InflowUnit = (u64, Vec<(Flight, f64, u8)>, MoveReport);
+type InflowUnit = (u64, Vec<Born>, MoveReport);
+
+/// A molecule that survived its entry flight: flight, rotational energy, species.
+type Born = (Flight, f64, u8);
 
 /// Buffers of the sort, reused from step to step (never part of the saved state).
 #[derive(Default)]
@@ -208,6 +211,10 @@ pub struct Simulation {
     kept: Vec<usize>,
     /// Leading molecules whose sort keys the move has written (DSMC mode).
     keyed: usize,
+    /// Survivor buffers of the inflow units, reused from step to step: allocated afresh, a
+    /// free-molecular step's 60 units of 57 kB each made the allocator return and re-fault
+    /// pages every step (2–4 % of workload (a) in page faults and kernel time).
+    inflow_buffers: Vec<Vec<Born>>,
     /// The threads that run the parallel stages (as many as the rayon pool the simulation
     /// was built in).
     crew: Crew,
@@ -255,6 +262,7 @@ impl Simulation {
             sample_partial: Vec::new(),
             kept: Vec::new(),
             keyed: 0,
+            inflow_buffers: Vec::new(),
             crew: Crew::new(rayon::current_num_threads()),
         }
     }
@@ -305,8 +313,12 @@ impl Simulation {
         // microseconds fill the job's tail instead of running alone on one thread.
         let inflow = timed(&mut t.inject_s, || self.inflow_units());
         let small = inflow.iter().map(|u| u.2).sum::<u64>() < INJECT_UNIT;
+        // One reused survivor buffer per unit (they come back in `absorb_inflow`).
+        let pool = &mut self.inflow_buffers;
+        let mut buffers = pool.split_off(pool.len() - inflow.len().min(pool.len()));
+        buffers.resize_with(inflow.len(), Vec::new);
         let (mut crossings, drawn) = timed(&mut t.move_s, || {
-            self.move_molecules(if small { &inflow[..] } else { &[] })
+            self.move_molecules(if small { &inflow[..] } else { &[] }, &mut buffers)
         });
         // With collisions the sort drops the dead molecules, after the newcomers joined.
         if self.plan.collisions.is_none() {
@@ -317,7 +329,7 @@ impl Simulation {
             let drawn = if small {
                 drawn
             } else {
-                self.draw_inflow(inflow)
+                self.draw_inflow(inflow, &mut buffers)
             };
             self.absorb_inflow(drawn, &mut crossings)
         });
@@ -389,7 +401,11 @@ impl Simulation {
     /// Stage: move every molecule for one step, in parallel over fixed chunks; the `inflow`
     /// units given are drawn in the same job (one work item after the chunks). Returns the
     /// crossings of the move and the drawn inflow units.
-    fn move_molecules(&mut self, inflow: &[InflowPlan]) -> (Crossings, Vec<InflowUnit>) {
+    fn move_molecules(
+        &mut self,
+        inflow: &[InflowPlan],
+        buffers: &mut Vec<Vec<Born>>,
+    ) -> (Crossings, Vec<InflowUnit>) {
         let plan = &self.plan;
         let step = self.step;
         let seed = plan.case.solver.seed;
@@ -420,13 +436,16 @@ impl Simulation {
                 .zip(keys.chunks_mut(unit));
         let items: Vec<_> = chunks
             .map(MoveItem::Chunk)
-            .chain((!inflow.is_empty()).then_some(MoveItem::Inflow))
+            .chain((!inflow.is_empty()).then(|| MoveItem::Inflow(buffers.split_off(0))))
             .collect();
         let outcomes: Vec<MoveOutcome> = self.crew.map(items, |ci, item| {
             let (((((((z, r), vz), vr), vt), erot), sp), key) = match item {
                 MoveItem::Chunk(c) => c,
-                MoveItem::Inflow => {
-                    let drawn = inflow.iter().map(|&u| inflow_unit(plan, step, u));
+                MoveItem::Inflow(buffers) => {
+                    let drawn = inflow
+                        .iter()
+                        .zip(buffers)
+                        .map(|(&u, born)| inflow_unit(plan, step, u, born));
                     return MoveOutcome::Inflow(drawn.collect());
                 }
             };
@@ -528,9 +547,11 @@ impl Simulation {
     }
 
     /// Draw a large inflow's units in parallel (a small one is drawn in the move's job).
-    fn draw_inflow(&self, units: Vec<InflowPlan>) -> Vec<InflowUnit> {
+    fn draw_inflow(&self, units: Vec<InflowPlan>, buffers: &mut Vec<Vec<Born>>) -> Vec<InflowUnit> {
         let (plan, step) = (&self.plan, self.step);
-        self.crew.map(units, |_, u| inflow_unit(plan, step, u))
+        let items: Vec<_> = units.into_iter().zip(buffers.drain(..)).collect();
+        self.crew
+            .map(items, |_, (u, born)| inflow_unit(plan, step, u, born))
     }
 
     /// Book the drawn inflow units (in unit order) and append their survivors.
@@ -544,6 +565,8 @@ impl Simulation {
             crossings.merge(&rep.crossings);
         }
         append(&self.crew, &mut self.molecules, &units);
+        self.inflow_buffers
+            .extend(units.into_iter().map(|(_, born, _)| born));
     }
 
     /// Stage: stable counting sort of the molecules by (cell, subcell), dropping the molecules
@@ -988,7 +1011,8 @@ enum MoveItem<'a> {
             &'a mut [Stored],
         ),
     ),
-    Inflow,
+    /// The small inflow, with one reused survivor buffer per unit.
+    Inflow(Vec<Vec<Born>>),
 }
 
 /// What a work item of the move's job produced. (All but at most one are chunk reports, so
@@ -1002,7 +1026,7 @@ enum MoveOutcome {
 /// Draw one inflow unit: its molecules enter on their element and fly a uniformly random
 /// fraction of the step. A molecule that dies on its entry flight (left or deleted by
 /// weighting) is counted by `fly_one`, so the balance still closes.
-fn inflow_unit(plan: &Plan, step: u64, (ei, k, n): InflowPlan) -> InflowUnit {
+fn inflow_unit(plan: &Plan, step: u64, (ei, k, n): InflowPlan, mut born: Vec<Born>) -> InflowUnit {
     let el = &plan.inflow[ei];
     let seed = plan.case.solver.seed;
     let mut rng = stream(seed, step, Stage::Inject, (ei as u64) << 32 | k);
@@ -1013,7 +1037,8 @@ fn inflow_unit(plan: &Plan, step: u64, (ei, k, n): InflowPlan) -> InflowUnit {
     } else {
         plan.case.downstream.temperature
     };
-    let mut born = Vec::with_capacity(n as usize);
+    born.clear();
+    born.reserve(n as usize);
     for _ in 0..n {
         let mut f = el.sample(&mut rng);
         let mut erot = crate::maxwell::rotational_energy(plan.rot_dof[s], t_res, &mut rng);
