@@ -197,13 +197,30 @@ pub fn workload(
     let array_bytes = Molecules::BYTES_PER_MOLECULE;
     // Bytes moved per particle-step, modelled from the passes over the arrays (b bytes per
     // molecule): the move reads and writes them (2b); with collisions it also writes the sort
-    // keys (4), the sort counts them (4), reads them again to write the permutation (8),
-    // copies the permutation (8) and gathers every column through it (2b + 7 × 4), then the
+    // keys (4), the sort counts them (4), reads them again to write the permutation (8) and
+    // gathers the columns through it (read and write each gathered column, plus 4 for its
+    // permutation entry; a one-species gas rewrites its 1-byte species column instead, a gas
+    // without rotational modes leaves its 4-byte rotational energies as they are), then the
     // collision stage and the sampling read the arrays once each (2b); without collisions the
     // gaps are closed (2b) and the sampling reads them (b).
     let b = array_bytes as f64;
+    let one_species = sim.plan.masses.len() == 1;
+    let no_rotation = sim.plan.rot_dof.iter().all(|&d| d == 0);
+    let (mut gathered_bytes, mut gathered_columns) = (b, 7.0);
+    if one_species {
+        gathered_bytes -= 1.0;
+        gathered_columns -= 1.0;
+    }
+    if no_rotation {
+        gathered_bytes -= 4.0;
+        gathered_columns -= 1.0;
+    }
+    let species_rewrite = if one_species { 1.0 } else { 0.0 };
     let modelled = if sim.plan.collisions.is_some() {
-        2.0 * b + 4.0 + (4.0 + 8.0 + 8.0 + 2.0 * b + 28.0) + 2.0 * b
+        2.0 * b
+            + 4.0
+            + (4.0 + 8.0 + 2.0 * gathered_bytes + 4.0 * gathered_columns + species_rewrite)
+            + 2.0 * b
     } else {
         2.0 * b + 2.0 * b + b
     };
