@@ -108,8 +108,15 @@ impl FieldSampler {
                     let hi = offsets[(c + 1) * subcells] as usize;
                     let a = &mut moments[k * MOMENTS..(k + 1) * MOMENTS];
                     let n = &mut counts[k * ns..(k + 1) * ns];
+                    // The cell's sums are taken in a local array (kept in registers), then
+                    // added to the accumulators once: adding each molecule straight into
+                    // memory chained every sum through a store and a reload.
+                    let mut cell = [0.0; MOMENTS];
                     for i in lo..hi {
-                        add(plan, m, i, n, a);
+                        add(plan, m, i, n, &mut cell);
+                    }
+                    for (a, c) in a.iter_mut().zip(cell) {
+                        *a += c;
                     }
                 }
             },
@@ -237,7 +244,7 @@ impl FieldSampler {
 }
 
 /// Add molecule i to its cell's species counts `n` and moments `a`.
-#[inline]
+#[inline(always)]
 fn add(plan: &Plan, m: &Molecules, i: usize, n: &mut [f64], a: &mut [f64]) {
     let a: &mut [f64; MOMENTS] = a.try_into().expect("one cell's moments");
     let s = m.species[i] as usize;
