@@ -1251,16 +1251,15 @@ fn fly_one<R: Rng>(
     let band1 = w.band(f.r);
     *row = band1;
     if band1 != band0 {
-        let ratio = weight / w.factor[band1];
-        if ratio < 1.0 {
-            if rng.random::<f64>() >= ratio {
+        let change = w.change(band0, band1);
+        if change.ratio < 1.0 {
+            if rng.random::<f64>() >= change.ratio {
                 rep.deleted += 1;
                 return Fate::Left(SurfaceRole::Wall);
             }
         } else {
-            let extra = ratio - 1.0;
-            let mut copies = extra.floor() as u32;
-            if rng.random::<f64>() < extra - extra.floor() {
+            let mut copies = change.whole;
+            if rng.random::<f64>() < change.fraction {
                 copies += 1;
             }
             for _ in 0..copies {

@@ -30,6 +30,36 @@ pub struct RadialWeights {
     pub bands: usize,
     /// Weight factor per row (≥ 1, non-decreasing outward).
     pub factor: Vec<f64>,
+    /// What a move from row i to row j does, at `i * bands + j` (see [`RowChange`]): worked
+    /// out once here, so the move loop needs no division and no rounding per molecule.
+    #[serde(skip)]
+    pub changes: Vec<RowChange>,
+}
+
+/// The outcome rule of a molecule that moves from one row to another: its expected number of
+/// copies is `ratio` = w_old/w_new. Below 1 it is kept with probability `ratio`; otherwise it
+/// gets `whole` = ⌊ratio − 1⌋ clones, and one more with probability `fraction` = the rest.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RowChange {
+    pub ratio: f64,
+    pub whole: u32,
+    pub fraction: f64,
+}
+
+impl RowChange {
+    fn new(w_old: f64, w_new: f64) -> Self {
+        let ratio = w_old / w_new;
+        let extra = ratio - 1.0;
+        RowChange {
+            ratio,
+            whole: if ratio < 1.0 { 0 } else { extra.floor() as u32 },
+            fraction: if ratio < 1.0 {
+                0.0
+            } else {
+                extra - extra.floor()
+            },
+        }
+    }
 }
 
 impl RadialWeights {
@@ -39,11 +69,16 @@ impl RadialWeights {
         let r_max = rows.edges(rows.len() - 1).1;
         let factor = (0..rows.len())
             .map(|j| 1.0 + (ratio - 1.0) * rows.center(j) / r_max)
+            .collect::<Vec<f64>>();
+        let changes = factor
+            .iter()
+            .flat_map(|&a| factor.iter().map(move |&b| RowChange::new(a, b)))
             .collect();
         RadialWeights {
             rows: rows.clone(),
             bands: rows.len(),
             factor,
+            changes,
         }
     }
 
@@ -51,6 +86,12 @@ impl RadialWeights {
     #[inline]
     pub fn band(&self, r: f64) -> usize {
         self.rows.locate(r).0
+    }
+
+    /// The rule for a move from row `from` to row `to`.
+    #[inline]
+    pub fn change(&self, from: usize, to: usize) -> RowChange {
+        self.changes[from * self.bands + to]
     }
 
     /// Weight factor at radius r.
