@@ -617,28 +617,41 @@ impl Simulation {
                 .collect();
             crew.for_each(items, |_, (((k, z), r), sp)| key_of(k, z, r, sp));
         }
-        // One source block per thread: per-block key counts, turned into per-block write
+        // Source blocks, two per thread: per-block key counts, turned into per-block write
         // cursors, then each block writes the source index of each of its molecules at its
         // cursor (the permutation: sorted position → molecule). The molecules come sorted from
-        // the last step and move less than a cell per step, so block t's molecules land in
-        // about the t-th part of the permutation: the threads' writes meet only near the
-        // block boundary, and the crew gives thread t the same part in every stage.
-        let parts = crew.threads().clamp(1, n.div_ceil(CHUNK).max(1));
+        // the last step and move less than a cell per step, so block b's molecules land in
+        // about the b-th part of the permutation: the threads' writes meet only near their
+        // share's boundary, and the crew gives thread t the same share in every stage.
+        // A thread walks its two blocks side by side: consecutive molecules mostly share a key,
+        // and one block's counter increments then wait on each other through memory; two
+        // blocks give two independent chains.
+        let pairs = crew.threads().clamp(1, n.div_ceil(2 * CHUNK).max(1));
+        let parts = 2 * pairs;
         let block_len = n.div_ceil(parts).max(1);
         s.counts.clear();
         s.counts.resize(parts * nkeys, 0);
         let keys = &s.keys;
         let items: Vec<_> = s
             .counts
-            .chunks_mut(nkeys)
-            .zip(keys.chunks(block_len))
+            .chunks_mut(2 * nkeys)
+            .zip(keys.chunks(2 * block_len))
             .collect();
         crew.for_each(items, |_, (c, k)| {
-            for k in k {
+            let (c0, c1) = c.split_at_mut(nkeys);
+            let (k0, k1) = k.split_at(block_len.min(k.len()));
+            let count = |c: &mut [u32], k: Stored| {
                 let k = k.to_bits();
                 if k != DEAD_KEY {
                     c[k as usize] += 1;
                 }
+            };
+            for (&a, &b) in k0.iter().zip(k1) {
+                count(c0, a);
+                count(c1, b);
+            }
+            for &a in &k0[k1.len()..] {
+                count(c0, a);
             }
         });
         // Offsets: the key totals, summed block by block, then a running sum. Cursors, from
@@ -684,17 +697,27 @@ impl Simulation {
         let out = SharedWrites(perm_bits.as_mut_ptr(), alive);
         let items: Vec<_> = s
             .counts
-            .chunks_mut(nkeys)
-            .zip(keys.chunks(block_len))
+            .chunks_mut(2 * nkeys)
+            .zip(keys.chunks(2 * block_len))
             .collect();
-        crew.for_each(items, |b, (cursor, k)| {
-            for (i, k) in (b * block_len..).zip(k) {
+        crew.for_each(items, |u, (cursor, k)| {
+            let (c0, c1) = cursor.split_at_mut(nkeys);
+            let (k0, k1) = k.split_at(block_len.min(k.len()));
+            let (base0, base1) = (2 * u * block_len, (2 * u + 1) * block_len);
+            let place = |c: &mut [u32], i: usize, k: Stored| {
                 let k = k.to_bits();
                 if k != DEAD_KEY {
-                    let c = &mut cursor[k as usize];
+                    let c = &mut c[k as usize];
                     out.write(*c as usize, Stored::from_bits(i as u32));
                     *c += 1;
                 }
+            };
+            for (j, (&a, &b)) in k0.iter().zip(k1).enumerate() {
+                place(c0, base0 + j, a);
+                place(c1, base1 + j, b);
+            }
+            for (j, &a) in k0.iter().enumerate().skip(k1.len()) {
+                place(c0, base0 + j, a);
             }
         });
         // SAFETY: the cursors enumerate exactly the positions 0..alive, one per live molecule,
