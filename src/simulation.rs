@@ -27,7 +27,7 @@ use crate::numerics::{Plan, CHUNK};
 use crate::particles::{make_room, Molecules, Stored, DEAD};
 use crate::sample::FieldSampler;
 use crate::streams::{stream, Stage};
-use crate::weights::CLONE_DELAY_MAX;
+use crate::weights::{CloneQueue, CLONE_DELAY_MAX};
 use rand::Rng;
 use std::time::{Duration, Instant};
 
@@ -47,15 +47,7 @@ pub const SAMPLE_BLOCK: usize = 4 * CHUNK;
 /// benchmark was 5 % slower with 1024-molecule chunks.
 pub const DSMC_MOVE_UNIT: usize = 1024;
 
-/// A clone waiting for release (see `weights`).
-#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
-pub struct PendingClone {
-    pub flight: Flight,
-    pub erot: f64,
-    pub species: u8,
-    /// Step at whose start the clone enters the domain.
-    pub release_step: u64,
-}
+pub use crate::weights::PendingClone;
 
 /// Particle bookkeeping since the start of the run (simulated molecules).
 #[derive(Debug, Clone, Copy, Default, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -177,7 +169,7 @@ pub struct SavedState {
 pub struct Simulation {
     pub plan: Plan,
     pub molecules: Molecules,
-    pub pending: Vec<PendingClone>,
+    pub pending: CloneQueue,
     /// Steps completed.
     pub step: u64,
     pub flux: FluxHistory,
@@ -243,7 +235,7 @@ impl Simulation {
         Simulation {
             plan,
             molecules,
-            pending: Vec::new(),
+            pending: CloneQueue::default(),
             step: 0,
             flux: FluxHistory::new(species),
             balance,
@@ -277,7 +269,7 @@ impl Simulation {
             sampled_cell_molecules: self.sampled_cell_molecules,
             sampled_upstream_molecules: self.sampled_upstream_molecules,
             flux: self.flux.clone(),
-            pending: self.pending.clone(),
+            pending: self.pending.to_vec(self.step),
             wall_time_s: self.wall_time_s,
             molecules: self.molecules.clone(),
             sigma_cr_max: self.sigma_cr_max.clone(),
@@ -297,7 +289,7 @@ impl Simulation {
         sim.sampled_cell_molecules = s.sampled_cell_molecules;
         sim.sampled_upstream_molecules = s.sampled_upstream_molecules;
         sim.flux = s.flux;
-        sim.pending = s.pending;
+        sim.pending = CloneQueue::from_saved(s.step, s.pending);
         sim.wall_time_s = s.wall_time_s;
         sim.molecules = s.molecules;
         sim.sigma_cr_max = s.sigma_cr_max;
@@ -378,24 +370,14 @@ impl Simulation {
     /// would skip that snapshot and bias the density low where clones are made).
     fn release_clones(&mut self) {
         let step = self.step;
-        let mut released = 0;
+        let due = self.pending.take_due(step);
         let mol = &mut self.molecules;
-        mol.reserve(
-            self.pending
-                .iter()
-                .filter(|c| c.release_step <= step)
-                .count(),
-        );
-        self.pending.retain(|c| {
-            if c.release_step <= step {
-                mol.push(&c.flight, c.erot, c.species);
-                released += 1;
-                false
-            } else {
-                true
-            }
-        });
-        self.balance.clones_released += released;
+        mol.reserve(due.len());
+        for c in &due {
+            mol.push(&c.flight, c.erot, c.species);
+        }
+        self.balance.clones_released += due.len() as u64;
+        self.pending.recycle(step, due);
     }
 
     /// Stage: move every molecule for one step, in parallel over fixed chunks; the `inflow`
@@ -516,7 +498,7 @@ impl Simulation {
             self.balance.left_upstream += rep.left_up;
             self.balance.left_downstream += rep.left_down;
             self.balance.deleted_by_weighting += rep.deleted;
-            self.pending.extend(rep.clones);
+            self.pending.extend(step, rep.clones);
         }
         (total, drawn)
     }
@@ -561,7 +543,7 @@ impl Simulation {
             self.balance.left_upstream += rep.left_up;
             self.balance.left_downstream += rep.left_down;
             self.balance.deleted_by_weighting += rep.deleted;
-            self.pending.extend(rep.clones.iter().copied());
+            self.pending.extend(self.step, rep.clones.iter().copied());
             crossings.merge(&rep.crossings);
         }
         append(&self.crew, &mut self.molecules, &units);

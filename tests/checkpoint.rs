@@ -45,6 +45,12 @@ fn saved_and_restored_run_continues_bit_identically() {
     assert_eq!(straight.fields, resumed.fields);
     assert_eq!(straight.balance, resumed.balance);
     assert_eq!(straight.collision_stats, resumed.collision_stats);
+    // The clones still waiting (radial weighting makes them here), in release order.
+    assert!(!straight.pending.is_empty());
+    assert_eq!(
+        straight.pending.to_vec(straight.step),
+        resumed.pending.to_vec(resumed.step)
+    );
 }
 
 /// `kinflux run` stopped by SIGTERM mid-sampling exits with code 75 after saving; `--resume`
