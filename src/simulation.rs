@@ -614,14 +614,8 @@ impl Simulation {
         s.counts.clear();
         s.counts.resize(parts * nkeys, 0);
         let keys = &s.keys;
-        let items: Vec<_> = s
-            .counts
-            .chunks_mut(2 * nkeys)
-            .zip(keys.chunks(2 * block_len))
-            .collect();
-        crew.for_each(items, |_, (c, k)| {
-            let (c0, c1) = c.split_at_mut(nkeys);
-            let (k0, k1) = k.split_at(block_len.min(k.len()));
+        let items = block_pairs(&mut s.counts, keys, nkeys, block_len);
+        crew.for_each(items, |_, ((c0, c1), (k0, k1))| {
             let count = |c: &mut [u32], k: Stored| {
                 let k = k.to_bits();
                 if k != DEAD_KEY {
@@ -677,14 +671,8 @@ impl Simulation {
         perm_bits.clear();
         make_room(perm_bits, alive);
         let out = SharedWrites(perm_bits.as_mut_ptr(), alive);
-        let items: Vec<_> = s
-            .counts
-            .chunks_mut(2 * nkeys)
-            .zip(keys.chunks(2 * block_len))
-            .collect();
-        crew.for_each(items, |u, (cursor, k)| {
-            let (c0, c1) = cursor.split_at_mut(nkeys);
-            let (k0, k1) = k.split_at(block_len.min(k.len()));
+        let items = block_pairs(&mut s.counts, keys, nkeys, block_len);
+        crew.for_each(items, |u, ((c0, c1), (k0, k1))| {
             let (base0, base1) = (2 * u * block_len, (2 * u + 1) * block_len);
             let place = |c: &mut [u32], i: usize, k: Stored| {
                 let k = k.to_bits();
@@ -1143,6 +1131,22 @@ fn append(crew: &Crew, m: &mut Molecules, units: &[InflowUnit]) {
         m.erot.set_len(n);
         m.species.set_len(n);
     }
+}
+
+/// The sort's work items: per pair of blocks, the two blocks' per-key counters (`nkeys` each)
+/// and the two blocks' keys (`block_len` each; the last pair's may be short or empty).
+#[allow(clippy::type_complexity)]
+fn block_pairs<'a>(
+    counts: &'a mut [u32],
+    keys: &'a [Stored],
+    nkeys: usize,
+    block_len: usize,
+) -> Vec<((&'a mut [u32], &'a mut [u32]), (&'a [Stored], &'a [Stored]))> {
+    counts
+        .chunks_mut(2 * nkeys)
+        .zip(keys.chunks(2 * block_len))
+        .map(|(c, k)| (c.split_at_mut(nkeys), k.split_at(block_len.min(k.len()))))
+        .collect()
 }
 
 /// Write access to the capacity of one vector, shared by the workers of the sort's placement.
